@@ -1,0 +1,44 @@
+"""Atomic output: write to a temporary file beside the target, then rename.
+
+A reader never sees half a file, and an error leaves no output behind.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import tempfile
+
+
+@contextlib.contextmanager
+def atomic_path(path):
+    """Yield a temporary path in the target's folder; rename it over ``path`` on success.
+
+    On any exception the temporary file is removed and ``path`` is untouched.
+    """
+    path = os.fspath(path)
+    folder = os.path.dirname(os.path.abspath(path))
+    os.makedirs(folder, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix="." + os.path.basename(path) + ".", suffix=".tmp", dir=folder)
+    os.close(fd)
+    try:
+        yield tmp
+        os.replace(tmp, path)
+    except BaseException:
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(tmp)
+        raise
+
+
+def write_text(path, text):
+    """Write ``text`` to ``path`` atomically (UTF-8)."""
+    with atomic_path(path) as tmp:
+        with open(tmp, "w", encoding="utf-8") as fh:
+            fh.write(text)
+
+
+def write_bytes(path, data):
+    """Write ``data`` to ``path`` atomically."""
+    with atomic_path(path) as tmp:
+        with open(tmp, "wb") as fh:
+            fh.write(data)
