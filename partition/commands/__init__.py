@@ -1,0 +1,4 @@
+"""Subcommands of the ``shardline`` command line, one module each."""
+
+COMMANDS = [
+]
