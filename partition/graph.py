@@ -177,11 +177,32 @@ def dense_ids(columns):
         Sorted unique ids.
     codes : list of ndarray of int64
         The dense index of each entry of each column.
+
+    Notes
+    -----
+    Non-negative integer ids below ``max(4 · entries, 2^24)`` are mapped with a
+    presence array (linear time); other ids by hashing (``pandas.factorize``)
+    and sorting the distinct ids only.
     """
     sizes = [len(c) for c in columns]
     allv = np.concatenate(columns) if columns else np.empty(0, dtype=np.int64)
-    ids, inverse = np.unique(allv, return_inverse=True)
-    inverse = inverse.astype(np.int64, copy=False)
+    if allv.size == 0:
+        return allv, [np.empty(0, dtype=np.int64) for _ in columns]
+    if allv.dtype.kind in "iu" and allv.min() >= 0 and allv.max() < max(4 * allv.size, 1 << 24):
+        present = np.zeros(int(allv.max()) + 1, dtype=bool)
+        present[allv] = True
+        remap = np.cumsum(present, dtype=np.int64) - 1
+        ids = np.flatnonzero(present).astype(np.int64)
+        return ids, [remap[c] for c in columns]
+    import pandas as pd
+
+    codes, uniques = pd.factorize(allv, sort=False)
+    uniques = np.asarray(uniques, dtype=allv.dtype)
+    order = np.argsort(uniques, kind="stable")
+    rank = np.empty(order.size, dtype=np.int64)
+    rank[order] = np.arange(order.size, dtype=np.int64)
+    inverse = rank[codes]
+    ids = uniques[order]
     out, start = [], 0
     for s in sizes:
         out.append(inverse[start : start + s])
@@ -225,27 +246,8 @@ def build_graph(src, dst, weights=None, node_ids=None, node_weights=None, source
     if n >= 2**31 - 1:
         raise InputError(source, f"{n} nodes is more than the in-memory engine holds (2^31 - 1)")
 
-    keep = u != v
-    lo = np.minimum(u, v)[keep]
-    hi = np.maximum(u, v)[keep]
-    key = lo * np.int64(n) + hi
-    if weights is None:
-        key = np.unique(key)
-        w = None
-    else:
-        wk = np.asarray(weights, dtype=np.float64)[keep]
-        order = np.argsort(key, kind="stable")
-        key = key[order]
-        wk = wk[order]
-        if key.size:
-            first = np.flatnonzero(np.concatenate(([True], key[1:] != key[:-1])))
-            w = np.add.reduceat(wk, first)
-            key = key[first]
-        else:
-            w = np.empty(0, dtype=np.float64)
-    lo = key // n
-    hi = key - lo * n
-    indptr, indices, ew = _symmetric_csr(n, lo, hi, w)
+    w = None if weights is None else np.asarray(weights, dtype=np.float64)
+    indptr, indices, ew = _csr_kernel(n, u, v, w)
 
     nweights = None
     if node_weights is not None:
@@ -275,31 +277,19 @@ def _common_id_type(cols):
     return out
 
 
-def _symmetric_csr(n, lo, hi, w):
-    """CSR of the symmetric matrix with entries (lo, hi) and (hi, lo), rows sorted.
+def _csr_kernel(n, u, v, w):
+    """Symmetric CSR of the pairs (u, v): self-loops dropped, duplicates merged.
 
-    ``(lo, hi)`` must be sorted by ``lo * n + hi`` and distinct.
+    Rows are sorted; with weights ``w`` the weights of repeated pairs are summed
+    (in the order of the input, so sums of integers are exact and sums of
+    floats are the same for the same input), without weights each distinct pair
+    counts once.
     """
-    # Counting sort by row; within a row the entries from the (lo, hi) half are
-    # already in increasing ``hi`` order, those of the (hi, lo) half in
-    # increasing ``lo`` order, and every lo-neighbour of a row is smaller than
-    # every hi-neighbour, so a stable sort by row keeps each row sorted when the
-    # second half comes first.
-    row = np.concatenate((hi, lo))
-    col = np.concatenate((lo, hi))
-    order = _stable_argsort_small(row, n)
-    indices = col[order].astype(np.int32)
-    counts = np.bincount(row, minlength=n)
-    indptr = np.zeros(n + 1, dtype=np.int64)
-    np.cumsum(counts, out=indptr[1:])
-    ew = None
-    if w is not None:
-        ew = np.concatenate((w, w))[order]
-    return indptr, indices, ew
+    from partition._csr_kernels import build_symmetric_csr
 
-
-def _stable_argsort_small(keys, n):
-    """Stable argsort of integer keys in ``[0, n)``."""
-    if n < 2**15:
-        return np.argsort(keys.astype(np.int16), kind="stable")
-    return np.argsort(keys, kind="stable")
+    u = np.ascontiguousarray(u, dtype=np.int64)
+    v = np.ascontiguousarray(v, dtype=np.int64)
+    if w is None:
+        indptr, indices, _ = build_symmetric_csr(n, u, v, np.empty(0, dtype=np.float64), False)
+        return indptr, indices, None
+    return build_symmetric_csr(n, u, v, np.ascontiguousarray(w, dtype=np.float64), True)
