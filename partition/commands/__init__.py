@@ -1,4 +1,5 @@
 """Subcommands of the ``shardline`` command line, one module each."""
 
 COMMANDS = [
+    "datasets",
 ]
