@@ -1,0 +1,1 @@
+"""Placement operations: lookups, relabelling, migration plans, hashing for keys outside the graph."""
