@@ -68,7 +68,7 @@ _REQUIRED = (
     "name", "collection", "kind", "url", "upstream_format", "nodes", "edges", "file",
     "file_sha256", "edges_sha256", "degrees_sha256", "download_check",
 )
-_FORMATS = ("edgelist", "edgelist.gz", "edgelist.tar.gz", "matrix-market.tar.gz")
+_FORMATS = ("edgelist", "edgelist.gz", "matrix-market.tar.gz")
 _COMMENT = re.compile(rb"(?m)^[ \t]*[#%][^\n]*\n?")
 
 
@@ -89,8 +89,7 @@ def load_catalog(catalog=None):
     Raises
     ------
     InputError
-        When the file is missing, is not JSON, or an entry lacks a field or
-        names an unknown upstream format.
+        A missing or malformed file, or an entry that lacks a field.
     """
     if isinstance(catalog, list):
         entries, source = catalog, "<catalog>"
@@ -123,13 +122,7 @@ def list_datasets(catalog=None):
 
 
 def get_dataset(name, catalog=None):
-    """The entry called ``name``.
-
-    Raises
-    ------
-    ParameterError
-        When no entry has that name (the message lists the names).
-    """
+    """The entry called ``name``; a :class:`ParameterError` listing the names if there is none."""
     entries = load_catalog(catalog)
     for entry in entries:
         if entry["name"] == name:
@@ -154,14 +147,15 @@ def _sorted_unique(values):
     return values[np.concatenate(([True], values[1:] != values[:-1]))] if values.size else values
 
 
-def _canonical_pairs(src, dst):
+def _canonical_pairs(src, dst, loops=False):
+    """Distinct ``(min, max)`` pairs sorted by first then second id (self-loops only with ``loops``)."""
     src = np.asarray(src)
     dst = np.asarray(dst)
     if src.dtype.kind not in "iu" or dst.dtype.kind not in "iu":
         raise ParameterError("edge checksums are defined for integer node ids only")
     src = src.astype(np.int64, copy=False)
     dst = dst.astype(np.int64, copy=False)
-    keep = src != dst
+    keep = np.ones(src.shape, dtype=bool) if loops else src != dst
     lo, hi = np.minimum(src, dst)[keep], np.maximum(src, dst)[keep]
     if lo.size and lo.min() >= 0 and hi.max() < 2**31:
         key = _sorted_unique((lo << 32) | hi)  # same order as sorting the pairs, much faster
@@ -326,17 +320,7 @@ def _largest_component(src, dst):
 # fetch
 @dataclass(frozen=True)
 class Fetched:
-    """What :func:`fetch` wrote.
-
-    Attributes
-    ----------
-    path : pathlib.Path
-        The file written.
-    source : str
-        The local file copied or the address downloaded.
-    checked : str
-        What was verified, in words.
-    """
+    """What :func:`fetch` wrote: the ``path``, its ``source`` (file or address) and what was ``checked``."""
 
     path: Path
     source: str
@@ -440,9 +424,6 @@ def _convert(entry, raw, url):
             if keep_gz and raw[:2] == b"\x1f\x8b":
                 return raw, src, dst, False
             return (_gzip(text) if keep_gz else text), src, dst, keep_gz
-    elif fmt == "edgelist.tar.gz":
-        text = _tar_member(raw, member, url)
-        src, dst = read_pairs(text, f"{url}:{member}")
     else:
         src, dst = _matrix_market_pairs(_tar_member(raw, member, url), f"{url}:{member}")
     if entry.get("subset") == "largest-component":
@@ -454,7 +435,7 @@ def _convert(entry, raw, url):
 
 
 def _edge_text(entry, src, dst, url):
-    pairs = _canonical_pairs(src, dst)
+    pairs = _canonical_pairs(src, dst, loops=True)  # a self-loop keeps its node in the graph
     return edgelist_bytes(pairs[:, 0], pairs[:, 1], comment=f"{entry['name']}: converted from {url}")
 
 

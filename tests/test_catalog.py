@@ -237,15 +237,17 @@ def test_fetch_downloads_snap_style_edge_list(server, tmp_path):
 def test_fetch_converts_matrix_market_archive(server, tmp_path):
     root, base = server
     g = nx.convert_node_labels_to_integers(nx.grid_2d_graph(3, 4))
+    g.add_edge(12, 12)  # a node whose only entry is on the diagonal: still a node
     buf = io.BytesIO()
     scipy.io.mmwrite(buf, sp.coo_matrix(nx.to_scipy_sparse_array(g, format="coo")), symmetry="symmetric")
     (root / "mesh.tar.gz").write_bytes(_tar_gz("mesh/mesh.mtx", buf.getvalue()))
     want = ref_edges_sha256((u + 1, v + 1) for u, v in g.edges())  # Matrix Market ids are 1-based
-    cat = [_entry("mesh", f"{base}/mesh.tar.gz", "matrix-market.tar.gz", "mesh.txt.gz", 12, 17, "edges",
+    cat = [_entry("mesh", f"{base}/mesh.tar.gz", "matrix-market.tar.gz", "mesh.txt.gz", 13, 17, "edges",
                   want, upstream_member="mesh/mesh.mtx")]
     got = fetch("mesh", tmp_path / "out", catalog=cat, timeout=5)
     h = nx.read_edgelist(got.path, nodetype=int)
     assert {tuple(sorted(e)) for e in h.edges()} == {(u + 1, v + 1) for u, v in g.edges()}
+    assert h.number_of_nodes() == 13
     assert "matrix-market" in got.checked
 
 
