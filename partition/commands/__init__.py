@@ -1,5 +1,6 @@
 """Subcommands of the ``shardline`` command line, one module each."""
 
 COMMANDS = [
+    "baseline",
     "datasets",
 ]
