@@ -23,11 +23,20 @@ def atomic_path(path):
     os.close(fd)
     try:
         yield tmp
+        # mkstemp makes the file owner-only; give it the usual mode under the umask
+        if os.path.isfile(tmp):
+            os.chmod(tmp, 0o666 & ~_umask())
         os.replace(tmp, path)
     except BaseException:
         with contextlib.suppress(FileNotFoundError):
             os.unlink(tmp)
         raise
+
+
+def _umask():
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def write_text(path, text):
