@@ -3,4 +3,5 @@
 COMMANDS = [
     "baseline",
     "datasets",
+    "ring",
 ]
