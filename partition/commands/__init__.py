@@ -4,4 +4,5 @@ COMMANDS = [
     "baseline",
     "datasets",
     "ring",
+    "score",
 ]

@@ -1,0 +1,103 @@
+"""``shardline score``: check a node→shard file against its graph and measure it.
+
+``shardline score GRAPH ASSIGNMENT [-k K] [--imbalance EPS] [--json]`` reads
+the graph and the assignment (every node once, shard ids in ``[0, k)``), then
+prints the cut, balance, communication volume, boundary nodes and fanout of
+:func:`partition.score.score` as tables — the per-shard table and the
+shard×shard cut matrix only for ``k <= 16`` — or, with ``--json``, the whole
+:meth:`partition.score.Score.to_dict` as JSON. With ``--imbalance`` it also
+says whether the balance rule holds; the exit status stays 0 either way (the
+answer is in the report, not an error).
+"""
+
+from __future__ import annotations
+
+import json
+
+from partition.assignment import read_assignment
+from partition.commands.common import add_graph_arguments, graph_from_args
+from partition.errors import check_imbalance, check_parts
+from partition.score import score
+
+NAME = "score"
+HELP = "validate a node→shard file against the graph and report cut, balance, volume and fanout"
+
+TABLE_MAX_K = 16
+"""Largest k for which the per-shard table and the cut matrix are printed."""
+
+
+def add_arguments(parser):
+    add_graph_arguments(parser)
+    parser.add_argument("assignment", metavar="ASSIGNMENT",
+                        help="node→shard file: node,shard rows (CSV/TSV/whitespace, .gz) or Parquet")
+    parser.add_argument("-k", "--shards", dest="k", type=int, default=None,
+                        help="number of shards (default: largest shard id + 1)")
+    parser.add_argument("--imbalance", metavar="EPS", type=float, default=None,
+                        help="also check the balance rule for this allowed imbalance ε")
+    parser.add_argument("--json", action="store_true", help="print the figures as JSON")
+
+
+def run(args) -> int:
+    eps = None if args.imbalance is None else check_imbalance(args.imbalance)
+    k = None if args.k is None else check_parts(args.k)
+    graph = graph_from_args(args)
+    parts = read_assignment(args.assignment, graph, k=k)
+    result = score(graph, parts, k=k, eps=eps)
+    if args.json:
+        figures = result.to_dict()
+        figures.update({"graph": str(args.graph), "assignment": str(args.assignment)})
+        print(json.dumps(figures, indent=2, sort_keys=True))
+    else:
+        _print_tables(result, args)
+    return 0
+
+
+def _number(x):
+    """Whole numbers without decimals, others with four significant decimals."""
+    return f"{int(x):,}" if float(x).is_integer() else f"{x:,.4f}"
+
+
+def _print_tables(s, args):
+    from rich.console import Console
+    from rich.table import Table
+
+    console = Console()
+    table = Table(title=f"score of {args.assignment}, k = {s.k}")
+    table.add_column("figure")
+    table.add_column("value", justify="right")
+    rows = [
+        ("nodes", f"{s.n_nodes:,}"),
+        ("edges", f"{s.n_edges:,}"),
+        ("cut edges", f"{s.cut_edges:,}"),
+        ("cut weight / total", f"{_number(s.cut_weight)} / {_number(s.total_edge_weight)}"),
+        ("cut fraction", f"{s.cut_fraction:.4f}"),
+        ("imbalance", f"{s.imbalance:.4f}"),
+        ("lightest / heaviest shard", f"{int(s.shard_weights.min()):,} / {int(s.shard_weights.max()):,}"),
+        ("communication volume", f"{s.communication_volume:,}"),
+        ("boundary nodes", f"{s.boundary_nodes:,} ({s.boundary_nodes / s.n_nodes:.1%})"),
+        ("fanout (mean shards per neighbourhood)", f"{s.fanout:.4f}"),
+        ("shard pairs with cut edges", f"{s.cut_matrix.nnz // 2:,}"),
+    ]
+    if s.eps is not None:
+        verdict = "holds" if s.balanced else f"broken ({len(s.violations)} shard(s))"
+        rows.append((f"balance rule, ε = {s.eps:g}", f"cap {s.cap:,}: {verdict}"))
+    for name, value in rows:
+        table.add_row(name, value)
+    console.print(table)
+    if s.k > TABLE_MAX_K:
+        return
+    shards = Table(title="shards")
+    for name in ("shard", "nodes", "weight", "cut weight"):
+        shards.add_column(name, justify="right")
+    for i in range(s.k):
+        shards.add_row(str(i), f"{int(s.shard_sizes[i]):,}", f"{int(s.shard_weights[i]):,}",
+                       _number(s.shard_cut_weights[i]))
+    console.print(shards)
+    matrix = Table(title="cut weight between shards")
+    matrix.add_column("", justify="right")
+    for j in range(s.k):
+        matrix.add_column(str(j), justify="right")
+    dense = s.cut_matrix.toarray()
+    for i in range(s.k):
+        matrix.add_row(str(i), *("·" if i == j else _number(dense[i, j]) for j in range(s.k)))
+    console.print(matrix)
