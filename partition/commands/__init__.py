@@ -3,6 +3,7 @@
 COMMANDS = [
     "baseline",
     "datasets",
+    "diff",
     "ring",
     "score",
 ]
