@@ -92,3 +92,26 @@ def test_check_partition_errors():
         check_partition(g, np.array([0.0, 1.0, 1.0]), 2)
     with pytest.raises(ParameterError, match=r"\[0, 2\)"):
         check_partition(g, np.array([0, 1, 2]), 2)
+
+
+def test_pair_rounds_settles_pairs_that_change_nothing():
+    from partition.refine.units import pair_rounds
+
+    rng = np.random.default_rng(6)
+    g = build_graph(rng.integers(0, 80, 400), rng.integers(0, 80, 400))
+    parts = np.arange(g.n) % 6
+    seen = []
+
+    def idle_round(current, pairs):
+        seen.extend(pairs)
+        return current, [0] * len(pairs), [False] * len(pairs)
+
+    for schedule in ("round_robin", "matched", "line"):
+        seen.clear()
+        _, rounds = pair_rounds(g, parts, 6, np.ones(g.indices.shape[0], dtype=np.int64), idle_round,
+                                schedule=schedule, max_rounds=50)
+        assert len(seen) == len(set(seen))  # no pair is run twice while nothing changes
+        if schedule != "line":
+            assert len(seen) == 15  # all 6 · 5 / 2 pairs touch (random graph), each once
+    with pytest.raises(ParameterError, match="schedule"):
+        pair_rounds(g, parts, 6, np.ones(g.indices.shape[0], dtype=np.int64), idle_round, schedule="spiral")

@@ -36,8 +36,7 @@ from scipy.sparse.csgraph import breadth_first_order, maximum_flow
 
 from partition.errors import ParameterError
 from partition.refine.rebalance import rebalance_kernel
-from partition.refine.schedule import line_pairs, matched_pairs, round_robin
-from partition.refine.units import check_partition, edge_cut, fixed_point_weights, shard_cut_matrix, shard_index
+from partition.refine.units import SCHEDULES, check_partition, edge_cut, fixed_point_weights, pair_rounds, shard_index
 
 __all__ = ["boundary_region", "pair_min_cut", "flow_pair", "refine_flow"]
 
@@ -279,9 +278,8 @@ def refine_flow(graph, parts, rule, schedule="round_robin", max_rounds=None, see
     schedule : {"round_robin", "line", "matched"}
         As in :func:`partition.refine.fm.refine_fm`.
     max_rounds : int, optional
-        Default: one round-robin tour; 4 for the other schedules. Stops earlier
-        once a tour (round robin), two rounds (line) or a round (matched)
-        gains nothing.
+        As in :func:`partition.refine.units.pair_rounds`; stops earlier when no
+        pair can gain.
     seed : int
         Orders the round-robin rounds (``numpy.random.default_rng(seed)``).
     layers : int, default 3
@@ -295,8 +293,8 @@ def refine_flow(graph, parts, rule, schedule="round_robin", max_rounds=None, see
     -------
     parts : ndarray of int64
     stats : dict
-        ``cut_before``, ``cut_after``, ``rounds`` (pairs tried, pairs improved,
-        gain), ``balanced``, ``seconds``.
+        ``cut_before``, ``cut_after``, ``rounds`` (pairs tried and gain of each
+        round), ``balanced``, ``seconds``.
 
     Raises
     ------
@@ -309,8 +307,8 @@ def refine_flow(graph, parts, rule, schedule="round_robin", max_rounds=None, see
     algorithms", Proc. 19th European Symposium on Algorithms (ESA), 2011.
     """
     t0 = time.perf_counter()
-    if schedule not in ("round_robin", "line", "matched"):
-        raise ParameterError(f"unknown schedule {schedule!r}; choose round_robin, line or matched")
+    if schedule not in SCHEDULES:
+        raise ParameterError(f"unknown schedule {schedule!r}; choose one of {', '.join(SCHEDULES)}")
     if int(layers) < 1 or not region > 0:
         raise ParameterError(f"layers must be >= 1 and region > 0, got {layers!r} and {region!r}")
     k = rule.k
@@ -319,32 +317,20 @@ def refine_flow(graph, parts, rule, schedule="round_robin", max_rounds=None, see
         weights, scale = fixed_point_weights(graph)
     else:
         scale = 1
-    tour = round_robin(k)
-    perm = np.random.default_rng(seed).permutation(len(tour))
-    if max_rounds is None:
-        max_rounds = len(tour) if schedule == "round_robin" else 4
-    patience = {"round_robin": len(tour), "line": 2, "matched": 1}[schedule]
     cut_before = float(edge_cut(graph, parts))
-    rounds, idle = [], 0
-    for r in range(int(max_rounds)):
-        cm = shard_cut_matrix(graph, parts, k, weights)
-        if schedule == "round_robin":
-            pairs = tour[perm[r % len(tour)]]
-        elif schedule == "line":
-            pairs = line_pairs(k, r)
-        else:
-            pairs = matched_pairs(cm)
-        pairs = [(a, b) for a, b in pairs if cm[a, b] > 0]
-        order, bounds = shard_index(parts, k)
+
+    def run_round(current, pairs):
+        current = current.copy()
+        order, bounds = shard_index(current, k)
         gains = []
         for a, b in pairs:
             nodes = np.sort(np.concatenate((order[bounds[a]:bounds[a + 1]], order[bounds[b]:bounds[b + 1]])))
-            gains.append(flow_pair(graph, parts, a, b, nodes, rule, weights, layers, region))
-        gain = sum(gains) / scale
-        rounds.append({"pairs": len(pairs), "improved": sum(g > 0 for g in gains), "gain": float(gain)})
-        idle = idle + 1 if gain == 0 else 0
-        if idle >= patience:
-            break
+            gains.append(flow_pair(graph, current, a, b, nodes, rule, weights, layers, region))
+        return current, gains, [g > 0 for g in gains]
+
+    parts, rounds = pair_rounds(graph, parts, k, weights, run_round, schedule, max_rounds, seed)
+    for r in rounds:
+        r["gain"] = float(r["gain"]) / scale
     loads = np.bincount(parts, weights=graph.node_weight_array(), minlength=k)
     stats = {
         "cut_before": cut_before,

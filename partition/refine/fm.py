@@ -43,21 +43,18 @@ import numpy as np
 
 from partition.errors import ParameterError
 from partition.refine.kway import fm_kway
-from partition.refine.schedule import line_pairs, matched_pairs, round_robin
 from partition.refine.units import (
+    SCHEDULES,
     check_partition,
     edge_cut,
     fixed_point_weights,
     heap_pop,
     heap_push,
-    shard_cut_matrix,
+    pair_rounds,
     shard_index,
 )
 
 __all__ = ["fm_pair", "fm_round", "refine_fm", "refine_fm_kway"]
-
-SCHEDULES = ("round_robin", "line", "matched")
-
 
 @numba.njit(cache=True, nogil=True, inline="always")
 def _viol(l0, l1, cap0, cap1, floor0, floor1):
@@ -355,11 +352,11 @@ def refine_fm(graph, parts, rule, schedule="round_robin", max_rounds=None, seed=
     schedule : {"round_robin", "line", "matched"}
         Where the pairs of each round come from (:mod:`partition.refine.schedule`):
         all pairs in a seeded order of round-robin rounds, line neighbours, or a
-        greedy matching of the start-of-round shard cut matrix.
+        greedy matching of the start-of-round shard cut matrix; pairs that
+        cannot gain are skipped (:func:`partition.refine.units.pair_rounds`).
     max_rounds : int, optional
-        Default: one round-robin tour (``k - 1`` or ``k`` rounds); 4 otherwise.
-        Stops earlier once a tour (round robin), two rounds (line) or one round
-        (matched) gains nothing.
+        Default: one round-robin tour (``k - 1`` or ``k`` rounds), ``k`` rounds
+        for ``matched``, 4 for ``line``. Stops earlier when no pair can gain.
     seed : int
         Orders the round-robin rounds (``numpy.random.default_rng(seed)``).
     max_passes, max_stall : int
@@ -397,28 +394,18 @@ def refine_fm(graph, parts, rule, schedule="round_robin", max_rounds=None, seed=
         weights, scale = fixed_point_weights(graph)
     else:
         scale = 1.0
-    tour = round_robin(k)
-    perm = np.random.default_rng(seed).permutation(len(tour))
-    if max_rounds is None:
-        max_rounds = len(tour) if schedule == "round_robin" else 4
-    patience = {"round_robin": len(tour), "line": 2, "matched": 1}[schedule]
     cut_before = float(edge_cut(graph, parts))
-    rounds, idle = [], 0
-    for r in range(int(max_rounds)):
-        cm = shard_cut_matrix(graph, parts, k, weights)
-        if schedule == "round_robin":
-            pairs = tour[perm[r % len(tour)]]
-        elif schedule == "line":
-            pairs = line_pairs(k, r)
-        else:
-            pairs = matched_pairs(cm)
-        pairs = [(a, b) for a, b in pairs if cm[a, b] > 0]
-        parts, gains = fm_round(graph, parts, pairs, rule, weights, max_passes, max_stall, n_jobs)
-        gain = float(sum(gains)) / scale
-        rounds.append({"pairs": len(pairs), "gain": gain})
-        idle = idle + 1 if gain == 0 else 0
-        if idle >= patience:
-            break
+
+    def run_round(current, pairs):
+        new, gains = fm_round(graph, current, pairs, rule, weights, max_passes, max_stall, n_jobs)
+        order, bounds = shard_index(current, k)
+        changed = [bool(np.any(new[order[bounds[a]:bounds[a + 1]]] != a)
+                        or np.any(new[order[bounds[b]:bounds[b + 1]]] != b)) for a, b in pairs]
+        return new, gains, changed
+
+    parts, rounds = pair_rounds(graph, parts, k, weights, run_round, schedule, max_rounds, seed)
+    for r in rounds:
+        r["gain"] = float(r["gain"]) / scale
     loads = np.bincount(parts, weights=graph.node_weight_array(), minlength=k)
     stats = {
         "cut_before": cut_before,

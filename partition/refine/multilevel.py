@@ -102,7 +102,7 @@ def atom_levels(graph, hierarchy_labels, parts, min_atoms=1):
 
 
 def refine_multilevel(graph, hierarchy_labels, parts, rule, overfill=0.03, min_atoms=None,
-                      schedule="matched", max_rounds=None, max_passes=8, max_stall=256, seed=0):
+                      schedule="round_robin", max_rounds=None, max_passes=8, max_stall=256, seed=0):
     """Refine ``parts`` level by level on the hierarchy, then rebalance and refine at the nodes.
 
     Parameters

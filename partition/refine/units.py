@@ -152,3 +152,83 @@ def shard_index(parts, k):
     bounds = np.zeros(k + 1, dtype=np.int64)
     np.cumsum(np.bincount(parts, minlength=k), out=bounds[1:])
     return order, bounds
+
+
+SCHEDULES = ("round_robin", "line", "matched")
+
+
+def pair_rounds(graph, parts, k, weights, run_round, schedule="round_robin", max_rounds=None, seed=0):
+    """Drive rounds of disjoint shard pairs, skipping pairs known to gain nothing.
+
+    Each round takes its pairs from ``schedule`` (:mod:`partition.refine.schedule`):
+    a seeded order of the round-robin rounds, line neighbours (alternating
+    parity), or a greedy matching of the start-of-round cut matrix. A pair is
+    *settled* once a unit on it changed nothing; it stays settled until a unit
+    changes one of its two shards. A unit's result depends only on the nodes of
+    its two shards (see :mod:`partition.refine.fm`), so skipping a settled pair
+    changes no result; the matching is taken over unsettled pairs only, so the
+    matched schedule moves on to other pairs. Pairs with no cut edge are skipped.
+
+    Parameters
+    ----------
+    graph : Graph
+    parts : ndarray of int64, shape (n,)
+    k : int
+    weights : ndarray of int64
+        Integer edge weights (for the cut matrix).
+    run_round : callable
+        ``run_round(parts, pairs) -> (parts, gains, changed)`` with one gain and
+        one changed flag per pair.
+    schedule : {"round_robin", "line", "matched"}
+    max_rounds : int, optional
+        Default: one round-robin tour (``k − 1`` or ``k`` rounds) for
+        ``round_robin``, ``k`` for ``matched``, 4 for ``line``.
+    seed : int
+        Orders the round-robin rounds (``numpy.random.default_rng(seed)``).
+
+    Returns
+    -------
+    parts : ndarray of int64
+    rounds : list of dict
+        ``pairs`` run and summed ``gain`` of each round.
+
+    Raises
+    ------
+    ParameterError
+        For an unknown schedule.
+    """
+    from partition.refine.schedule import line_pairs, matched_pairs, round_robin
+
+    if schedule not in SCHEDULES:
+        raise ParameterError(f"unknown schedule {schedule!r}; choose one of {', '.join(SCHEDULES)}")
+    tour = round_robin(k)
+    perm = np.random.default_rng(seed).permutation(len(tour))
+    if max_rounds is None:
+        max_rounds = {"round_robin": len(tour), "matched": k, "line": 4}[schedule]
+    settled = np.zeros((k, k), dtype=bool)
+    rounds, idle = [], 0
+    for r in range(int(max_rounds)):
+        cm = shard_cut_matrix(graph, parts, k, weights)
+        live = (cm > 0) & ~settled
+        if not live.any():
+            break
+        if schedule == "round_robin":
+            pairs = tour[perm[r % len(tour)]]
+        elif schedule == "line":
+            pairs = line_pairs(k, r)
+        else:
+            pairs = matched_pairs(np.where(live, cm, 0))
+        pairs = [(a, b) for a, b in pairs if live[a, b]]
+        parts, gains, changed = run_round(parts, pairs)
+        for (a, b), ch in zip(pairs, changed):
+            if not ch:
+                settled[a, b] = settled[b, a] = True
+        for (a, b), ch in zip(pairs, changed):
+            if ch:
+                settled[[a, b], :] = False
+                settled[:, [a, b]] = False
+        rounds.append({"pairs": len(pairs), "gain": sum(gains)})
+        idle = idle + 1 if not any(changed) else 0
+        if schedule == "line" and idle >= 2:
+            break
+    return parts, rounds
