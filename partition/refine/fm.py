@@ -8,7 +8,7 @@ locks it and updates its neighbours' gains, keeps going through negative gains
 prefix of moves; passes repeat until one finds nothing (Kernighan & Lin 1970
 for the two-sided exchange idea, Fiduccia & Mattheyses 1982 for single moves
 with gain updates). Gains are integers (fixed-point edge weights, see
-:func:`fixed_point_weights`), held in two max-heaps (one per direction) with
+:func:`partition.refine.units.fixed_point_weights`), held in two max-heaps (one per direction) with
 lazy deletion.
 
 Balance. A move is allowed when both shards stay within their bounds widened
