@@ -1,6 +1,7 @@
 """Subcommands of the ``shardline`` command line, one module each."""
 
 COMMANDS = [
+    "run",
     "baseline",
     "datasets",
     "diff",
