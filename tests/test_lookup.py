@@ -261,3 +261,21 @@ def test_bad_files_without_lines(tmp_path):
     pq.write_table(pa.table({"id": [1], "part": [0]}), other)
     with pytest.raises(InputError, match="needs columns node and shard"):
         read_node_shards(other)
+
+
+@pytest.mark.parametrize("suffix", [".csv", ".tsv", ".parquet", ".csv.gz"])
+def test_reads_files_written_by_write_assignment(tmp_path, suffix):
+    # interoperability with partition.assignment: ids that need quoting (blanks, comma, leading #)
+    # come back exactly; integer ids come back as int64
+    from partition.assignment import write_assignment
+    from partition.graph import build_graph
+
+    g = build_graph(np.array(["a b", "#x", " c", "d,e"], dtype=object), np.array(["x", "y", "z", "w"], dtype=object))
+    parts = np.arange(g.n) % 3
+    write_assignment(tmp_path / f"s{suffix}", g, parts)
+    ids, shards = read_node_shards(tmp_path / f"s{suffix}")
+    assert ids.tolist() == g.ids.tolist() and shards.tolist() == parts.tolist()
+    g = build_graph(np.array([5, -3, 2**62]), np.array([1, 2, 3]))
+    write_assignment(tmp_path / f"i{suffix}", g, np.arange(g.n) % 2)
+    p = Placement.load(tmp_path / f"i{suffix}")
+    assert p.integer_keys and p.shards_of(g.ids).tolist() == (np.arange(g.n) % 2).tolist()

@@ -10,7 +10,10 @@ instead of the ~24 of a plain binary search over millions of keys. Integer
 keys take 14 bytes per key with int16 shards (8 key + 2 shard + at most 4 of
 directory). String placements also keep the key bytes in hash order, and a
 hit is confirmed by comparing the bytes, so answers are exact even when two
-keys share a hash (the search scans the run of equal hashes).
+keys share a hash (the search scans the run of equal hashes). Vectorised
+lookups run one compiled loop over the query array; a single integer key is
+searched in Python over memoryviews of the same arrays, which costs less than
+the call into compiled code.
 
 :func:`read_node_shards` reads a ``node,shard`` file (CSV/TSV with a header,
 optionally gzip-compressed, or Parquet) without a graph: node ids are int64
@@ -215,7 +218,7 @@ def _as_strings(keys):
         if keys.null_count:
             raise ParameterError("keys must not be null")
         return pc.cast(keys, pa.large_string())
-    arr = np.asarray(keys)
+    arr = _object_array(keys) if isinstance(keys, (list, tuple)) else np.asarray(keys)
     arr = arr.reshape(-1) if arr.ndim == 0 else arr
     if arr.ndim != 1:
         raise ParameterError(f"keys must be one-dimensional, got shape {arr.shape}")
@@ -236,19 +239,31 @@ def _as_strings(keys):
     return pa.array(arr, type=pa.large_string())
 
 
+def _object_array(items):
+    """A list as a 1-d object array (numpy's fixed-width strings would drop trailing NULs)."""
+    arr = np.empty(len(items), dtype=object)
+    arr[:] = items
+    return arr
+
+
 def _as_int_keys(keys):
-    """Integer keys as int64 (uint64 values above the int64 range are flagged)."""
-    arr = np.asarray(keys)
-    if arr.dtype.kind == "O" or (arr.dtype.kind not in "iu" and arr.size == 0):
-        try:
-            arr = np.asarray(arr, dtype=np.int64) if arr.size else np.zeros(0, dtype=np.int64)
-        except (TypeError, ValueError, OverflowError):
-            raise ParameterError("this placement has integer keys; got keys that are not all integers") from None
-    if arr.dtype.kind not in "iu" or arr.dtype == np.bool_:
-        raise ParameterError(f"this placement has integer keys; got keys of dtype {arr.dtype}")
+    """Integer keys as int64, and a mask of uint64 values beyond int64 (never placed) or None."""
+    arr = _object_array(keys) if isinstance(keys, (list, tuple)) else np.asarray(keys)
     arr = arr.reshape(-1) if arr.ndim == 0 else arr
     if arr.ndim != 1:
         raise ParameterError(f"keys must be one-dimensional, got shape {arr.shape}")
+    if arr.size == 0:
+        return np.zeros(0, dtype=np.int64), None
+    if arr.dtype.kind == "O":
+        try:
+            inferred = pa.array(arr, from_pandas=False)
+        except (pa.ArrowTypeError, pa.ArrowInvalid, OverflowError):
+            inferred = None
+        if inferred is None or not pa.types.is_integer(inferred.type):
+            raise ParameterError("this placement has integer keys; got keys that are not all integers")
+        arr = inferred.to_numpy()
+    if arr.dtype.kind not in "iu":
+        raise ParameterError(f"this placement has integer keys; got keys of dtype {arr.dtype}")
     too_big = None
     if arr.dtype == np.uint64:
         too_big = arr > np.uint64(np.iinfo(np.int64).max)
@@ -275,6 +290,7 @@ class Placement:
     """
 
     def __init__(self, keys, shards, k_off=None, k_data=None, mask=_ALL):
+        """Wrap sorted uint64 ``keys`` and their ``shards``; build through :meth:`load` or :meth:`from_arrays`."""
         self._keys, self._shards = keys, shards
         self._index = (keys,) + _directory(keys)
         self._off, self._data, self._mask = k_off, k_data, mask
@@ -304,8 +320,8 @@ class Placement:
             has a shard that is not an integer in ``[0, 2**31)``; the message
             names the file and line.
         """
-        ids, shards = _read(path)
-        return cls._build(ids, shards)
+        name, ids, shards, where = _read(path)
+        return cls._build(ids, shards, lambda key: _repeat_error(name, ids, key, where))
 
     @classmethod
     def from_arrays(cls, keys, shards):
@@ -331,7 +347,7 @@ class Placement:
             a key is not an integer or string, or a key appears twice.
         """
         if not isinstance(keys, (pa.Array, pa.ChunkedArray)):
-            arr = np.asarray(keys)
+            arr = _object_array(keys) if isinstance(keys, (list, tuple)) else np.asarray(keys)
             if arr.dtype.kind == "O" and arr.size:
                 try:
                     inferred = pa.array(arr.reshape(-1), from_pandas=False)
@@ -359,15 +375,16 @@ class Placement:
         return cls._build(keys, shards.astype(np.int64, copy=False))
 
     @classmethod
-    def _build(cls, keys, shards):
+    def _build(cls, keys, shards, repeat_error=None):
         sdtype = np.int16 if (shards.size == 0 or shards.max() < 2**15) else np.int32
         if isinstance(keys, np.ndarray) and keys.dtype == np.int64:
             u = keys.view(np.uint64) ^ _SIGN
-            order = np.argsort(u, kind="stable")
+            order = np.argsort(u)
             u = u[order]
             twice = np.flatnonzero(u[1:] == u[:-1])
             if twice.size:
-                raise ParameterError(f"key {int(keys[order[twice[0]]])} appears twice")
+                key = int(keys[order[twice[0]]])
+                raise repeat_error(key) if repeat_error else ParameterError(f"key {key} appears twice")
             return cls(u, shards[order].astype(sdtype))
         arr = _as_strings(keys)
         mask = np.uint64(_HASH_MASK)
@@ -380,7 +397,8 @@ class Placement:
         h = h[order]
         twice = _repeat_in_runs(h, off, data)
         if twice >= 0:
-            raise ParameterError(f"key {arr[int(twice)].as_py()!r} appears twice")
+            key = arr[int(twice)].as_py()
+            raise repeat_error(key) if repeat_error else ParameterError(f"key {key!r} appears twice")
         return cls(h, shards[order].astype(sdtype), k_off=off, k_data=data, mask=mask)
 
     # --- lookups -------------------------------------------------------------
@@ -413,7 +431,7 @@ class Placement:
         return self._position(key) >= 0
 
     def _position(self, key):
-        """Position of ``key`` (-1 when absent), in pure Python: cheaper than a compiled call."""
+        """Position of ``key`` or -1; integer keys are searched in Python (cheaper than a compiled call)."""
         if isinstance(key, (bool, np.bool_)) or not isinstance(key, (int, np.integer, str)):
             return -1
         if self.integer_keys:
@@ -542,7 +560,8 @@ def read_node_shards(path):
         comma) whose first line is a header naming the columns ``node`` and
         ``shard`` (other columns are ignored; empty lines are skipped; may be
         gzip-compressed), or a Parquet file with ``node`` and ``shard``
-        columns. Blanks around fields are trimmed.
+        columns. Blanks around integers are ignored; string ids are kept
+        exactly as written (quote an id to keep blanks or a comma in it).
 
     Returns
     -------
@@ -559,13 +578,35 @@ def read_node_shards(path):
         a non-negative integer below ``2**31``, or a node listed twice. The
         message names the file and the line (Parquet: the row).
     """
-    ids, shards = _read(path)
-    if not isinstance(ids, np.ndarray):
-        ids = ids.to_numpy(zero_copy_only=False).astype(object)
-    return ids, shards
+    name, ids, shards, where = _read(path)
+    if isinstance(ids, np.ndarray):
+        s = np.sort(ids)
+        again = np.flatnonzero(s[1:] == s[:-1])
+        if again.size:
+            raise _repeat_error(name, ids, s[again[0]], where)
+        return ids, shards
+    codes = ids.dictionary_encode().indices.to_numpy()
+    again = np.flatnonzero(codes[1:] <= np.maximum.accumulate(codes)[:-1])
+    if again.size:
+        raise _repeat_error(name, ids, ids[int(again[0]) + 1].as_py(), where)
+    return ids.to_numpy(zero_copy_only=False).astype(object), shards
+
+
+def _repeat_error(name, ids, key, where):
+    """The error for a node listed twice: the line of its second row, naming the first."""
+    if isinstance(ids, np.ndarray):
+        rows = np.flatnonzero(ids == key)
+    else:
+        rows = np.flatnonzero(pc.equal(ids, pa.scalar(key, pa.large_string())).to_numpy(zero_copy_only=False))
+    first, _ = where(int(rows[0]))
+    line, prefix = where(int(rows[1]))
+    earlier = f"line {first}" if first is not None else f"row {rows[0] + 1}"
+    shown = int(key) if isinstance(ids, np.ndarray) else repr(key)
+    return InputError(name, f"{prefix}node {shown} is listed twice (first on {earlier})", line)
 
 
 def _read(path):
+    """``(name, ids, shards, where)`` of a node,shard file; repeated nodes are not checked."""
     name = os.fspath(path)
     try:
         with open(name, "rb") as fh:
@@ -592,20 +633,7 @@ def _read(path):
 
     if len(nodes) == 0:
         raise InputError(name, "holds no node,shard rows")
-    shards = _shard_ints(shards, fail)
-    ids = _node_ids(nodes, fail)
-    codes = pa.array(ids).dictionary_encode().indices.to_numpy() if isinstance(ids, np.ndarray) \
-        else ids.dictionary_encode().indices.to_numpy()
-    seen = np.maximum.accumulate(codes)
-    again = np.flatnonzero(codes[1:] <= seen[:-1])
-    if again.size:
-        row = int(again[0]) + 1
-        first = int(np.argmax(codes == codes[row]))
-        line, _ = where(first)
-        earlier = f"line {line}" if line is not None else f"row {first + 1}"
-        shown = ids[row] if isinstance(ids, np.ndarray) else repr(ids[row].as_py())
-        raise fail(row, f"node {shown} is listed twice (first on {earlier})")
-    return ids, shards
+    return name, _node_ids(nodes, fail), _shard_ints(shards, fail), where
 
 
 def _text_columns(name, raw):
@@ -617,19 +645,25 @@ def _text_columns(name, raw):
     if names.count("node") != 1 or names.count("shard") != 1:
         raise InputError(name, f"the first line must be a header naming the columns node and shard, found {head[:80]!r}", 1)
     cols = [f"c{i}" for i in range(len(fields))]
-    try:
-        table = pacsv.read_csv(
-            pa.py_buffer(raw),
-            read_options=pacsv.ReadOptions(skip_rows=1, column_names=cols),
-            parse_options=pacsv.ParseOptions(delimiter=delim),
-            convert_options=pacsv.ConvertOptions(
-                column_types={c: pa.string() for c in cols},
-                include_columns=[cols[names.index("node")], cols[names.index("shard")]],
-                strings_can_be_null=False, quoted_strings_can_be_null=False,
-            ),
-        )
-    except (pa.ArrowInvalid, UnicodeDecodeError) as exc:
-        raise _locate_bad_line(name, raw, delim, len(fields), exc) from None
+    node, shard = cols[names.index("node")], cols[names.index("shard")]
+    table = None
+    for types in ((pa.int64(), pa.int64()), (pa.string(), pa.int64()), (pa.string(), pa.string())):
+        try:  # typed parses first (fast); strings last, whose checks name the bad line
+            table = pacsv.read_csv(
+                pa.py_buffer(raw),
+                read_options=pacsv.ReadOptions(skip_rows=1, column_names=cols),
+                parse_options=pacsv.ParseOptions(delimiter=delim),
+                convert_options=pacsv.ConvertOptions(
+                    column_types={node: types[0], shard: types[1]}, include_columns=[node, shard],
+                    strings_can_be_null=False, quoted_strings_can_be_null=False,
+                ),
+            )
+        except (pa.ArrowInvalid, UnicodeDecodeError) as exc:
+            if types[1] == pa.string():
+                raise _locate_bad_line(name, raw, delim, len(fields), exc) from None
+            continue
+        if table.column(0).null_count == 0 and table.column(1).null_count == 0:
+            break
     lines = []
 
     def where(row):
@@ -724,13 +758,14 @@ def _node_ids(col, fail):
             row = int(np.flatnonzero(col.to_numpy() >= np.uint64(2**63))[0])
             raise fail(row, f"node {col[row].as_py()} does not fit a 64-bit signed integer")
         return col.to_numpy().astype(np.int64, copy=False)
-    col = pc.cast(pc.utf8_trim_whitespace(col), pa.large_string())
-    empty = (pc.utf8_length(col).to_numpy(zero_copy_only=False) == 0)
+    col = pc.cast(col, pa.large_string())
+    trimmed = pc.utf8_trim_whitespace(col)
+    empty = (pc.utf8_length(trimmed).to_numpy(zero_copy_only=False) == 0)
     if empty.any():
         raise fail(int(np.flatnonzero(empty)[0]), "the node id is empty")
-    if pc.all(pc.match_substring_regex(col, _INT)).as_py():
+    if pc.all(pc.match_substring_regex(trimmed, _INT)).as_py():
         try:
-            return pc.cast(pc.replace_substring_regex(col, r"^\+", ""), pa.int64()).to_numpy()
+            return pc.cast(pc.replace_substring_regex(trimmed, r"^\+", ""), pa.int64()).to_numpy()
         except pa.ArrowInvalid:
             pass  # an id beyond the int64 range: keep them all as strings
-    return col
+    return col  # string ids are kept as written (a quoted " a" keeps its blank)
