@@ -85,6 +85,10 @@ def test_align_and_errors():
         migration_plan([1], [-1], [1], [0])
     with pytest.raises(ParameterError, match="no weight"):
         migration_plan([1, 2], [0, 0], [1], [1], weights=([1], [4]))
+    with pytest.raises(ParameterError, match="twice among the extra ids"):
+        migration_plan([1, 2], [0, 0], [1], [1], weights=([1, 2, 1], [4, 5, 6]))
+    with pytest.raises(ParameterError, match="non-negative"):
+        migration_plan([1], [0], [1], [1], weights=([1], [-2.0]))
 
 
 @pytest.mark.parametrize("suffix", [".csv", ".tsv", ".parquet"])

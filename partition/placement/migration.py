@@ -72,7 +72,8 @@ def align_placements(old_ids, old_shards, new_ids, new_shards, extra_ids=None):
     old_shards, new_shards : array_like of int
         Non-negative shard of each id.
     extra_ids : array_like, optional
-        More ids to place in the same id space (e.g. the ids of a weight table).
+        More distinct ids to place in the same id space (e.g. the ids of a
+        weight table).
 
     Returns
     -------
@@ -87,7 +88,7 @@ def align_placements(old_ids, old_shards, new_ids, new_shards, extra_ids=None):
     ------
     ParameterError
         Lengths differ, a shard is negative or not an integer, or an id appears
-        twice in one placement.
+        twice in one placement or in ``extra_ids``.
     """
     cols, shards = [], []
     for label, ids, sh in (("old", old_ids, old_shards), ("new", new_ids, new_shards)):
@@ -114,6 +115,8 @@ def align_placements(old_ids, old_shards, new_ids, new_shards, extra_ids=None):
         of = np.full(ids.shape[0], -1, dtype=np.int64)
         of[c] = sh
         out.append(of)
+    if extra_ids is not None and np.bincount(codes[2], minlength=ids.shape[0]).max(initial=0) > 1:
+        raise ParameterError("an id appears twice among the extra ids")
     return ids, out[0], out[1], (codes[2] if extra_ids is not None else None)
 
 
@@ -152,11 +155,11 @@ def migration_plan(old_ids, old_shards, new_ids, new_shards, weights=None):
     removed = (new_of < 0) & present
     k = int(max(old_of.max(initial=-1), new_of.max(initial=-1))) + 1
 
-    pieces, base = [], k * (k + 1) + k + 1  # code = kind·base + from·(k+1) + to
+    pieces = []
     for mask, kind in ((moved, 0), (added, 1), (removed, 2)):
-        code = kind * base + np.maximum(old_of[mask], 0) * (k + 1) + np.maximum(new_of[mask], 0)
+        code = np.maximum(old_of[mask], 0) * (k + 1) + np.maximum(new_of[mask], 0)  # from·(k+1) + to
         uniq, inv, count = np.unique(code, return_inverse=True, return_counts=True)
-        pieces.append((uniq - kind * base, count, _sum_by(inv.reshape(-1), w[mask], uniq.size), kind))
+        pieces.append((uniq, count, _sum_by(inv.reshape(-1), w[mask], uniq.size), kind))
     pair = np.concatenate([p[0] for p in pieces])
     src, dst = pair // (k + 1), pair % (k + 1)
     kind = np.concatenate([np.full(p[0].size, p[3]) for p in pieces])
