@@ -51,7 +51,16 @@ import numpy as np
 from partition.errors import ParameterError
 from partition.rules import AFFINITY_SCALE, WEDGE_BITS, quantise, quantise_ratio
 
-__all__ = ["edge_affinity", "common_neighbours", "wedge_sums", "reverse_entries", "METHODS", "DEFAULT_HUB_CAP"]
+__all__ = [
+    "edge_affinity",
+    "jaccard_value",
+    "ppr_value",
+    "common_neighbours",
+    "wedge_sums",
+    "reverse_entries",
+    "METHODS",
+    "DEFAULT_HUB_CAP",
+]
 
 METHODS = ("jaccard", "ppr", "weights", "unit")
 DEFAULT_HUB_CAP = 1000
@@ -124,17 +133,68 @@ def edge_affinity(graph, method="jaccard", alpha=0.15, steps=2, hub_cap=DEFAULT_
     rows = graph.rows()
     du, dv = deg[rows], deg[graph.indices]
     if method == "jaccard":
-        count = common_neighbours(graph, hub_cap)
-        return quantise_ratio(count + 2, du + dv - count)
-    # ppr
-    beta = 1.0 - alpha
+        return jaccard_value(common_neighbours(graph, hub_cap), du, dv)
     if steps == 2:
         inv = (np.int64(1) << WEDGE_BITS) // np.maximum(deg, 1)
-        s = wedge_sums(graph, inv, hub_cap).astype(np.float64) / float(1 << WEDGE_BITS)
+        wsum = wedge_sums(graph, inv, hub_cap)
     else:
-        s = np.zeros(size, dtype=np.float64)
-    value = (1.0 + beta * s) / np.maximum(du, dv).astype(np.float64)
-    return quantise(value)
+        wsum = np.zeros(size, dtype=np.int64)
+    return ppr_value(wsum, du, dv, alpha)
+
+
+def jaccard_value(count, du, dv):
+    """Fixed-point closed-neighbourhood Jaccard from common-neighbour counts.
+
+    A kernel shared by both engines: ``floor(2**20 · (c + 2) / (d_u + d_v − c))``.
+
+    Parameters
+    ----------
+    count : ndarray of int64
+        Common neighbours ``c`` of each edge (hubs capped).
+    du, dv : ndarray of int64
+        Degrees of the two ends.
+
+    Returns
+    -------
+    ndarray of int64
+
+    References
+    ----------
+    P. Jaccard, "Étude comparative de la distribution florale dans une portion
+    des Alpes et du Jura", Bull. Soc. Vaudoise Sci. Nat. 37, 1901.
+    """
+    count = np.asarray(count, dtype=np.int64)
+    return quantise_ratio(count + 2, np.asarray(du, np.int64) + np.asarray(dv, np.int64) - count)
+
+
+def ppr_value(wsum, du, dv, alpha=0.15):
+    """Fixed-point two-step PageRank affinity from integer wedge sums.
+
+    A kernel shared by both engines: ``quantise((1 + (1 − α) · wsum / 2**32) /
+    max(d_u, d_v))``, i.e. ``min(ppr_u(v), ppr_v(u)) / (α(1 − α))``.
+
+    Parameters
+    ----------
+    wsum : ndarray of int64
+        ``Σ floor(2**32 / d_w)`` over the common neighbours (rule 11); zeros
+        for the one-step series.
+    du, dv : ndarray of int64
+        Degrees of the two ends.
+    alpha : float
+        Restart probability.
+
+    Returns
+    -------
+    ndarray of int64
+
+    References
+    ----------
+    R. Andersen, F. Chung and K. Lang, "Local graph partitioning using PageRank
+    vectors", FOCS 2006.
+    """
+    s = np.asarray(wsum, dtype=np.int64).astype(np.float64) / float(1 << WEDGE_BITS)
+    top = np.maximum(np.asarray(du, np.int64), np.asarray(dv, np.int64)).astype(np.float64)
+    return quantise((1.0 + (1.0 - float(alpha)) * s) / top)
 
 
 def common_neighbours(graph, hub_cap=DEFAULT_HUB_CAP):

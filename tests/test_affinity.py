@@ -9,7 +9,14 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.stats import spearmanr
 
-from partition.affinity import common_neighbours, edge_affinity, reverse_entries, wedge_sums
+from partition.affinity import (
+    common_neighbours,
+    edge_affinity,
+    jaccard_value,
+    ppr_value,
+    reverse_entries,
+    wedge_sums,
+)
 from partition.errors import ParameterError
 from partition.graph import build_graph
 from partition.rules import AFFINITY_SCALE
@@ -152,6 +159,17 @@ def test_affinity_is_symmetric_and_in_range(edges, method, hub_cap):
     assert aff.dtype == np.int64 and aff.shape == g.indices.shape
     assert np.array_equal(aff, aff[reverse_entries(g)])
     assert (aff >= 0).all() and (aff <= AFFINITY_SCALE).all()
+
+
+def test_value_kernels_worked_examples():
+    # triangle edge: N[u] = N[v] = {u, v, w}, Jaccard 3/3 = 1
+    assert jaccard_value([1], [2], [2]).tolist() == [AFFINITY_SCALE]
+    # path edge inside a path: N[u] = {t, u, v}, N[v] = {u, v, x}: 2/4
+    assert jaccard_value([0], [2], [2]).tolist() == [AFFINITY_SCALE // 2]
+    # isolated edge: both directions are α(1−α)·1, divided by α(1−α) = 1
+    assert ppr_value([0], [1], [1]).tolist() == [AFFINITY_SCALE]
+    # triangle edge, α = 0.15: (1 + 0.85 · 1/2) / 2 = 0.7125
+    assert ppr_value([2**31], [2], [2]).tolist() == [round(0.7125 * AFFINITY_SCALE)]
 
 
 def test_reverse_entries_is_the_twin():
