@@ -1,0 +1,251 @@
+"""Read edge lists with Spark and normalise them exactly like :func:`partition.graph.build_graph`.
+
+Input: text edge lists (one ``u v`` or ``u v w`` pair a line; whitespace, tabs
+or commas between fields; lines whose first non-blank character is ``#`` or
+``%`` are comments; gzip/bzip2 by Spark's codecs) and Parquet (the first two
+columns, or named ones, and a weight column). A node-weights file holds
+``id weight`` text rows. Normalisation follows the in-memory builder: ids are
+integers when every id is an int64, else strings; dense ids in sorted id order
+(a range-partitioned rank, :func:`partition.spark.frames.dense_rank`); edges
+undirected with ``u < v``; self-loops dropped (their node kept); repeated pairs
+merged (weights summed, unweighted pairs counted once). A malformed line raises
+:class:`partition.errors.InputError` naming the file and the line.
+"""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass
+
+import numpy as np
+
+from partition.errors import InputError
+from partition.spark.frames import dense_rank, to_numpy
+
+__all__ = ["SparkGraph", "read_graph_df", "collect_graph", "detect_format"]
+
+
+@dataclass(eq=False)
+class SparkGraph:
+    """A normalised graph held in Spark.
+
+    Attributes
+    ----------
+    edges : DataFrame
+        ``u < v`` (long) dense ids, ``w`` (double, 1.0 when unweighted): each
+        undirected edge once.
+    nodes : DataFrame
+        ``node`` (long, dense id) and ``id`` (user id, long or string).
+    n, m : int
+    weighted : bool
+    node_weights : DataFrame or None
+        ``node``, ``weight`` (long).
+    id_kind : {"int", "str"}
+    source : str
+    """
+
+    edges: object
+    nodes: object
+    n: int
+    m: int
+    weighted: bool
+    node_weights: object
+    id_kind: str
+    source: str
+
+
+def detect_format(path, fmt="auto"):
+    """``"parquet"`` for ``.parquet``/``.pq`` names or folders of Parquet parts, else ``"text"``."""
+    if fmt != "auto":
+        if fmt not in ("text", "parquet"):
+            raise InputError(path, f"the Spark engine reads text or parquet edge lists, not {fmt!r}")
+        return fmt
+    p = str(path).rstrip("/")
+    if p.endswith((".parquet", ".pq")):
+        return "parquet"
+    if os.path.isdir(p) and any(f.endswith(".parquet") for f in os.listdir(p)):
+        return "parquet"
+    return "text"
+
+
+def _text_fields(spark, path, need):
+    """Data lines of a text file as (fields array, 1-based line number)."""
+    from pyspark.sql import functions as F
+
+    sc = spark.sparkContext
+    try:
+        rdd = sc.textFile(str(path)).zipWithIndex()
+    except Exception as exc:  # noqa: BLE001
+        raise InputError(path, f"cannot read: {exc}") from exc
+    df = spark.createDataFrame(rdd, "line string, idx long")
+    df = df.withColumn("t", F.trim(F.col("line")))
+    df = df.filter((F.length("t") > 0) & ~F.substring("t", 1, 1).isin("#", "%"))
+    df = df.select(F.split("t", r"[\s,]+").alias("f"), (F.col("idx") + 1).alias("line"))
+    bad = df.filter(F.size("f") < need).select("line").orderBy("line").limit(1).collect()
+    if bad:
+        raise InputError(path, f"expected at least {need} fields", bad[0]["line"])
+    return df
+
+
+def _weights_ok(df, col, path, what="weight", integer=False):
+    from pyspark.sql import functions as F
+
+    v = F.col(col)
+    cond = v.isNull() | F.isnan(v) | (v < 0) | (v == float("inf"))
+    if integer:
+        cond = cond | (v != F.floor(v))
+    bad = df.filter(cond).select("line").orderBy("line").limit(1).collect()
+    if bad:
+        kind = "a non-negative integer" if integer else "a finite number >= 0"
+        raise InputError(path, f"{what} must be {kind}", bad[0]["line"])
+
+
+def read_graph_df(spark, path, fmt="auto", weighted=False, source_column=None, target_column=None,
+                  weight_column=None, node_weights=None, allow_isolated=False):
+    """Read and normalise an edge list into a :class:`SparkGraph`.
+
+    Parameters
+    ----------
+    spark : pyspark.sql.SparkSession
+    path : str
+        Any path Spark reads (file or folder).
+    fmt : {"auto", "text", "parquet"}
+    weighted : bool
+        Read a weight (third field, or ``weight_column``).
+    source_column, target_column, weight_column : str or None
+        Parquet column names (default: the first two, then the third).
+    node_weights : str or None
+        Text file of ``id weight`` rows (non-negative integers).
+    allow_isolated : bool
+        Ids of the node-weights file without edges become isolated nodes.
+
+    Returns
+    -------
+    SparkGraph
+
+    Raises
+    ------
+    InputError
+        Malformed lines, bad weights, an empty graph, node-weights problems;
+        the message names the file and line.
+    """
+    from pyspark.sql import functions as F
+
+    if weight_column is not None:
+        weighted = True
+    fmt = detect_format(path, fmt)
+    if fmt == "text":
+        df = _text_fields(spark, path, 3 if weighted else 2)
+        cols = [F.col("f")[0].alias("s"), F.col("f")[1].alias("d"), "line"]
+        if weighted:
+            cols.append(F.expr("try_cast(f[2] as double)").alias("w"))
+        raw = df.select(*cols)
+    else:
+        pq = spark.read.parquet(str(path))
+        names = pq.columns
+        need = 3 if weighted else 2
+        if len(names) < need and (source_column is None or target_column is None):
+            raise InputError(path, f"expected at least {need} columns, found {len(names)}")
+        chosen = [source_column or names[0], target_column or names[1]]
+        if weighted:
+            chosen.append(weight_column or names[2])
+        for c in chosen:
+            if c not in names:
+                raise InputError(path, f"no column named {c!r} (columns: {', '.join(names)})")
+        pq = pq.withColumn("line", F.monotonically_increasing_id() + 1)
+        cols = [F.col(chosen[0]).cast("string").alias("s"), F.col(chosen[1]).cast("string").alias("d"), "line"]
+        if weighted:
+            cols.append(F.col(chosen[2]).cast("double").alias("w"))
+        raw = pq.select(*cols)
+        nulls = raw.filter(F.col("s").isNull() | F.col("d").isNull()).limit(1).collect()
+        if nulls:
+            raise InputError(path, "null node id", nulls[0]["line"])
+    if weighted:
+        _weights_ok(raw, "w", path)
+    raw = raw.localCheckpoint()
+
+    nw = None
+    if node_weights is not None:
+        nwf = _text_fields(spark, node_weights, 2)
+        nw = nwf.select(F.col("f")[0].alias("s"), F.expr("try_cast(f[1] as double)").alias("wt"), "line")
+        _weights_ok(nw, "wt", node_weights, "node weight", integer=True)
+        nw = nw.localCheckpoint()
+
+    id_cols = [raw.select(F.col("s").alias("id")), raw.select(F.col("d").alias("id"))]
+    if nw is not None:
+        id_cols.append(nw.select(F.col("s").alias("id")))
+    allids = id_cols[0]
+    for extra in id_cols[1:]:
+        allids = allids.unionByName(extra)
+    allids = allids.distinct().localCheckpoint()
+    non_int = allids.filter(F.expr("try_cast(id as bigint)").isNull()).limit(1).count()
+    id_kind = "str" if non_int else "int"
+    if id_kind == "int":
+        allids = allids.select(F.expr("cast(id as bigint)").alias("id")).distinct()
+    nodes = dense_rank(allids, "id", "node").select("node", "id").localCheckpoint()
+    n = nodes.count()
+    if n == 0:
+        raise InputError(path, "the graph is empty: no edges were found")
+
+    key = "id"
+    conv = (lambda c: F.expr(f"cast({c} as bigint)")) if id_kind == "int" else (lambda c: F.col(c))
+    e = raw.select(conv("s").alias("sid"), conv("d").alias("did"), *(["w"] if weighted else []))
+    nmap = nodes.select(F.col(key), "node")
+    e = (e.join(nmap.withColumnRenamed("id", "sid").withColumnRenamed("node", "a"), "sid")
+          .join(nmap.withColumnRenamed("id", "did").withColumnRenamed("node", "b"), "did"))
+    e = e.filter(F.col("a") != F.col("b")).select(
+        F.least("a", "b").alias("u"), F.greatest("a", "b").alias("v"), *(["w"] if weighted else []))
+    if weighted:
+        e = e.groupBy("u", "v").agg(F.sum("w").alias("w"))
+    else:
+        e = e.distinct().withColumn("w", F.lit(1.0))
+    edges = e.localCheckpoint()
+    m = edges.count()
+
+    nwdf = None
+    if nw is not None:
+        nwdf = nw.select(conv("s").alias("id"), F.col("wt").cast("long").alias("weight"), "line")
+        nwdf = nodes.join(nwdf, "id", "left")
+        missing = nwdf.filter(F.col("weight").isNull()).select("id").limit(5).collect()
+        if missing:
+            raise InputError(node_weights, f"node(s) of the edge list have no weight in the node-weights file "
+                                           f"(first: {', '.join(str(r['id']) for r in missing)})")
+        if not allow_isolated:
+            deg = edges.select(F.col("u").alias("node")).unionByName(edges.select(F.col("v").alias("node")))
+            ends = raw.select(conv("s").alias("id")).unionByName(raw.select(conv("d").alias("id"))).distinct()
+            extra = nwdf.join(ends, "id", "left_anti").select("id", "line").orderBy("line").limit(1).collect()
+            del deg
+            if extra:
+                raise InputError(node_weights, f"unknown node {extra[0]['id']!r} (not in the edge list)",
+                                 extra[0]["line"])
+        nwdf = nwdf.groupBy("node").agg(F.sum("weight").alias("weight")).localCheckpoint()
+    return SparkGraph(edges=edges, nodes=nodes, n=int(n), m=int(m), weighted=bool(weighted),
+                      node_weights=nwdf, id_kind=id_kind, source=str(path))
+
+
+def node_ids(sg):
+    """The user ids in dense-id order, as a numpy array (int64 or object)."""
+    ids = to_numpy(sg.nodes, ["node", "id"], sort=["node"])["id"]
+    return ids.astype(np.int64) if sg.id_kind == "int" else ids.astype(object)
+
+
+def node_weight_array(sg):
+    """Node weights by dense id (int64), or ``None`` for unit weights."""
+    if sg.node_weights is None:
+        return None
+    got = to_numpy(sg.node_weights, ["node", "weight"], sort=["node"])
+    out = np.zeros(sg.n, dtype=np.int64)
+    out[got["node"].astype(np.int64)] = got["weight"].astype(np.int64)
+    return out
+
+
+def collect_graph(sg):
+    """Collect a :class:`SparkGraph` into an in-memory :class:`partition.graph.Graph` (for the driver)."""
+    from partition.graph import build_graph
+
+    e = to_numpy(sg.edges, ["u", "v", "w"], sort=["u", "v"])
+    g = build_graph(e["u"].astype(np.int64), e["v"].astype(np.int64),
+                    weights=e["w"].astype(np.float64) if sg.weighted else None, ids=node_ids(sg),
+                    source=sg.source)
+    g.node_weights = node_weight_array(sg)
+    return g
