@@ -13,7 +13,8 @@ hit is confirmed by comparing the bytes, so answers are exact even when two
 keys share a hash (the search scans the run of equal hashes). Vectorised
 lookups run one compiled loop over the query array; a single integer key is
 searched in Python over memoryviews of the same arrays, which costs less than
-the call into compiled code.
+the call into compiled code. The compiled loop searches blocks of 16 queries
+step by step, so the memory accesses of different queries overlap.
 
 :func:`read_node_shards` reads a ``node,shard`` file (CSV/TSV with a header,
 optionally gzip-compressed, or Parquet) without a graph: node ids are int64
@@ -103,11 +104,52 @@ def _lower(keys, starts, lo, hi, shift, q):
     return np.int64(-1)
 
 
+_BLOCK = 16  # queries searched side by side, so their memory accesses overlap
+
+
+@numba.njit(cache=True, nogil=True)
+def _lower_block(keys, starts, lo, hi, shift, qs, t, pos, end):
+    """``pos[j]`` = position of the first copy of ``qs[j]`` in ``keys`` or -1, for ``j < t``.
+
+    The same search as ``_lower``, run step by step over the block: each step
+    issues ``t`` independent loads, which the processor overlaps.
+    """
+    for j in range(t):
+        q = qs[j]
+        if q < lo or q > hi:
+            pos[j] = 0
+            end[j] = 0
+        else:
+            b = (q - lo) >> shift
+            pos[j] = starts[b]
+            end[j] = starts[b + 1]
+    active = True
+    while active:
+        active = False
+        for j in range(t):
+            a, e = pos[j], end[j]
+            if a < e:
+                mid = (a + e) >> 1
+                if keys[mid] < qs[j]:
+                    pos[j] = mid + 1
+                else:
+                    end[j] = mid
+                active = True
+    for j in range(t):
+        a = pos[j]
+        if not (a < keys.shape[0] and keys[a] == qs[j]):
+            pos[j] = -1
+
+
 @numba.njit(cache=True, nogil=True)
 def _find_ints(keys, starts, lo, hi, shift, shards, queries, default, out):
-    for i in range(queries.shape[0]):
-        p = _lower(keys, starts, lo, hi, shift, queries[i])
-        out[i] = default if p < 0 else shards[p]
+    pos = np.empty(_BLOCK, dtype=np.int64)
+    end = np.empty(_BLOCK, dtype=np.int64)
+    for s in range(0, queries.shape[0], _BLOCK):
+        t = min(_BLOCK, queries.shape[0] - s)
+        _lower_block(keys, starts, lo, hi, shift, queries[s : s + t], t, pos, end)
+        for j in range(t):
+            out[s + j] = default if pos[j] < 0 else shards[pos[j]]
 
 
 @numba.njit(cache=True, nogil=True)
@@ -134,9 +176,22 @@ def _string_position(keys, starts, lo, hi, shift, k_off, k_data, q_data, qa, qb,
 
 @numba.njit(cache=True, nogil=True)
 def _find_strings(keys, starts, lo, hi, shift, shards, k_off, k_data, q_off, q_data, mask, default, out):
-    for i in range(out.shape[0]):
-        p = _string_position(keys, starts, lo, hi, shift, k_off, k_data, q_data, q_off[i], q_off[i + 1], mask)
-        out[i] = default if p < 0 else shards[p]
+    h = np.empty(_BLOCK, dtype=np.uint64)
+    pos = np.empty(_BLOCK, dtype=np.int64)
+    end = np.empty(_BLOCK, dtype=np.int64)
+    for s in range(0, out.shape[0], _BLOCK):
+        t = min(_BLOCK, out.shape[0] - s)
+        for j in range(t):
+            h[j] = _mix(_fnv(q_data, q_off[s + j], q_off[s + j + 1])) & mask
+        _lower_block(keys, starts, lo, hi, shift, h, t, pos, end)
+        for j in range(t):
+            i, p = s + j, pos[j]
+            out[i] = default
+            while 0 <= p < keys.shape[0] and keys[p] == h[j]:
+                if _same(k_data, k_off[p], k_off[p + 1], q_data, q_off[i], q_off[i + 1]):
+                    out[i] = shards[p]
+                    break
+                p += 1
 
 
 @numba.njit(cache=True, nogil=True)
