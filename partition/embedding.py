@@ -38,7 +38,7 @@ from partition.rules import canonical_labels
 __all__ = ["linear_order", "orient_clusters", "positions", "forest_walk", "spectral_order"]
 
 _DENSE_LIMIT = 300  # components up to this size use a dense eigensolver
-_COARSE_LIMIT = 1500  # largest coarse problem solved densely
+_COARSE_LIMIT = 800  # largest coarse problem solved densely
 _LOBPCG_ITERS = 60
 
 
@@ -403,7 +403,7 @@ def _coarse_start(a, d):
     a.sort_indices()
     sub = Graph(a.indptr.astype(np.int64), a.indices.astype(np.int32))
     hier = build_hierarchy(sub, edge_affinity(sub, "jaccard"))
-    level = next(r for r in range(hier.rounds + 1) if hier.sizes[r] <= _COARSE_LIMIT)
+    level = next(r for r in range(1, hier.rounds + 1) if hier.sizes[r] <= _COARSE_LIMIT)
     lab, c = hier.labels[level], hier.sizes[level]
     if c < 2:
         return None
