@@ -7,4 +7,7 @@ COMMANDS = [
     "diff",
     "ring",
     "score",
+    "export",
+    "recut",
+    "place",
 ]
