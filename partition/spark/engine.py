@@ -1,0 +1,361 @@
+"""The Spark engine's pipeline driver: read, affinity, hierarchy, order, cut, refine, write.
+
+:func:`run_spark` is what ``shardline run --engine spark`` calls; it returns the
+report dict. :func:`partition_spark` runs the pipeline on a
+:class:`~partition.spark.io.SparkGraph` and returns the shards, as
+:func:`partition.partitioner.partition_graph` does for an in-memory graph, with
+the same result for the same input, options and seed. Two modes:
+
+``distributed``
+    Hierarchy start only and the unit-based refinement steps
+    (``window``, ``fm``, ``swaps``: :data:`partition.spark.refine.UNIT_STEPS`),
+    each unit a Spark task; nothing collects the edges. In memory:
+    ``partition_graph(..., starts=("hierarchy",), refine=UNIT_STEPS)``.
+``full``
+    The in-memory defaults (``starts="auto"``, ``refine="default"``). The steps
+    that are not unit based — the spectral start, ``multilevel`` (its level
+    graphs, rebalancing and level-by-level FM), ``kway`` — collect the graph
+    and run on the driver with the in-memory functions.
+
+The driver holds O(n) arrays (hierarchy labels, positions, shards); the
+edges stay in Spark. GraphFrames is not needed (see
+:mod:`partition.spark.hierarchy`). :func:`fits_driver` is the rule for
+``--engine auto``.
+
+Reference: K. Aydin, M. Bateni and V. Mirrokni, "Distributed balanced
+partitioning via linear embedding", WSDM 2016.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import shutil
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from partition.affinity import DEFAULT_HUB_CAP, METHODS as AFFINITIES
+from partition.atomic import write_text
+from partition.balance import balance_rule
+from partition.cut import line_cut
+from partition.errors import ParameterError, check_imbalance, check_parts
+from partition.rules import LINKAGES
+
+__all__ = ["run_spark", "partition_spark", "fits_driver", "MODES", "BYTES_PER_EDGE"]
+
+MODES = ("distributed", "full")
+BYTES_PER_EDGE = 40  # in-memory engine, per undirected edge (CSR both ways, affinities, refinement)
+
+
+def fits_driver(path_or_stats, memory_bytes=None):
+    """Whether the in-memory engine can run a graph on this machine (``--engine auto``).
+
+    Rule: ``edges × BYTES_PER_EDGE < memory / 4``, where ``edges`` is the
+    number of edge lines (from ``{"edges": m}``) or, for a path, estimated from
+    its size (10 bytes a line for text, 4 for compressed text or Parquet — an
+    overestimate of the edges, so the rule errs towards Spark), and
+    ``memory`` the available physical memory (``psutil``) unless given.
+
+    Parameters
+    ----------
+    path_or_stats : str, path-like or dict
+    memory_bytes : int or None
+
+    Returns
+    -------
+    bool
+    """
+    if isinstance(path_or_stats, dict):
+        edges = int(path_or_stats["edges"])
+    else:
+        p = Path(path_or_stats)
+        files = [p] if p.is_file() else [f for f in p.rglob("*") if f.is_file()]
+        size = sum(f.stat().st_size for f in files)
+        packed = any(str(f).endswith((".gz", ".bz2", ".parquet", ".pq")) for f in files)
+        edges = size // (4 if packed else 10)
+    if memory_bytes is None:
+        import psutil
+
+        memory_bytes = psutil.virtual_memory().available
+    return edges * BYTES_PER_EDGE < memory_bytes / 4
+
+
+def _cut(spark, sg, parts):
+    from partition.spark.refine import _parts_df, cut_matrix, int_weights
+
+    wedges, _ = int_weights(spark, sg, "cut")
+    pdf = _parts_df(spark, np.asarray(parts, dtype=np.int64), np.zeros(len(parts), dtype=np.int64))
+    return int(cut_matrix(spark, wedges.select("u", "v", "wi"), pdf, int(np.max(parts)) + 1).sum()) // 2
+
+
+def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum", hub_cap=DEFAULT_HUB_CAP,
+                    mode="distributed", work_dir=None, resume=False, collect_edges=None, progress=None):
+    """Partition a :class:`~partition.spark.io.SparkGraph` (see the module docstring).
+
+    Parameters
+    ----------
+    spark : SparkSession
+    sg : partition.spark.io.SparkGraph
+    k : int
+    eps : float
+    seed : int
+    affinity : {"jaccard", "ppr", "weights", "unit"}
+    linkage : {"sum", "average", "max"}
+    hub_cap : int
+    mode : {"distributed", "full"}
+    work_dir : str or path-like
+        Checkpoints (hierarchy rounds, stages).
+    resume : bool
+    collect_edges : int or None
+        Coarse graphs with at most this many edges finish on the driver
+        (default :data:`partition.spark.hierarchy.COLLECT_EDGES`).
+    progress : callable or None
+        Called with one dict per stage and per hierarchy round.
+
+    Returns
+    -------
+    parts : ndarray of int64
+    order : ndarray of int64
+    report : dict
+
+    Raises
+    ------
+    ParameterError
+        Bad ``k``, ε, options, or a resume with other options.
+    """
+    from partition.partitioner import DEFAULT_REFINE, STEP_OPTIONS, _resolve_starts
+    from partition.spark.affinity import edge_affinity_df
+    from partition.spark.checkpoint import Checkpoints
+    from partition.spark.hierarchy import COLLECT_EDGES, build_hierarchy_df
+    from partition.spark.io import collect_graph, node_weight_array
+    from partition.spark.order import linear_order_df
+    from partition.spark.refine import UNIT_STEPS, spark_fm, spark_swaps, spark_window
+    from partition.spark.session import describe
+
+    k = check_parts(k, sg.n)
+    eps = check_imbalance(eps)
+    if mode not in MODES:
+        raise ParameterError(f"mode must be one of {', '.join(MODES)}, got {mode!r}")
+    if affinity not in AFFINITIES or linkage not in LINKAGES:
+        raise ParameterError(f"unknown affinity {affinity!r} or linkage {linkage!r}")
+    if affinity == "weights" and not sg.weighted:
+        raise ParameterError("affinity 'weights' needs a weighted graph")
+    for step, opts in (("window", {}), ("fm", {"schedule": "matched"}), ("swaps", {})):
+        if STEP_OPTIONS.get(step) != opts:
+            raise ParameterError(f"the Spark engine reproduces {step} with {opts}, the in-memory engine now uses "
+                                 f"{STEP_OPTIONS.get(step)}")
+    collect_edges = COLLECT_EDGES if collect_edges is None else int(collect_edges)
+    if work_dir is None:
+        work_dir = tempfile.mkdtemp(prefix="shardline-spark-")
+    work_dir = Path(work_dir)
+    options = {"k": k, "eps": eps, "seed": int(seed), "affinity": affinity, "linkage": linkage,
+               "hub_cap": int(hub_cap), "mode": mode, "n": sg.n, "m": sg.m, "source": sg.source}
+    ck = Checkpoints(work_dir, options, resume)
+    rows = []
+
+    def stage(name, t, **info):
+        row = {"stage": name, "seconds": round(time.perf_counter() - t, 4), **info}
+        rows.append(row)
+        if progress is not None:
+            progress(row)
+
+    if mode == "distributed":
+        starts, steps = ("hierarchy",), UNIT_STEPS
+    else:
+        starts, steps = _resolve_starts("auto", sg.n), DEFAULT_REFINE
+    nweights = node_weight_array(sg)
+    rule = balance_rule(nweights, k, eps, n_nodes=sg.n)
+    nw_ones = np.ones(sg.n, dtype=np.int64) if nweights is None else nweights
+    driver_graph = []
+
+    def graph():
+        if not driver_graph:
+            driver_graph.append(collect_graph(sg))
+        return driver_graph[0]
+
+    t = time.perf_counter()
+    describe(spark, "affinity")
+    aff = edge_affinity_df(sg, affinity, hub_cap=hub_cap)
+    stage("affinity", t, method=affinity)
+    t = time.perf_counter()
+    h = build_hierarchy_df(spark, aff, sg.n, seed=seed, linkage=linkage, work=work_dir, resume=resume,
+                           collect_edges=collect_edges, progress=progress)
+    stage("hierarchy", t, rounds=h.rounds, clusters=[int(x) for x in h.sizes], edges=[int(x) for x in h.edges])
+
+    best, start_rows = None, []
+    for name in starts:
+        t = time.perf_counter()
+        key = f"{name}-order"
+        if ck.has(key):
+            order = ck.load(key)[0]["order"]
+        elif name == "hierarchy":
+            order = linear_order_df(spark, h, sg.edges)
+        else:
+            from partition.embedding import spectral_order
+
+            order = spectral_order(graph(), seed=seed)
+        ck.save(key, {"order": order})
+        stage(f"{name}: order", t)
+        t = time.perf_counter()
+        parts = np.asarray(line_cut(order, nweights, k, eps), dtype=np.int64)
+        stage(f"{name}: line cut", t)
+        raw = _cut(spark, sg, parts)
+        for step in steps:
+            t = time.perf_counter()
+            key = f"{name}-{step}"
+            if ck.has(key):
+                parts = ck.load(key)[0]["parts"]
+            elif step == "window":
+                parts = spark_window(spark, sg, order, parts, rule, nweights, progress=progress)
+            elif step == "fm":
+                parts = spark_fm(spark, sg, parts, rule, nw_ones, seed=seed, progress=progress)
+            elif step == "swaps":
+                parts = spark_swaps(spark, sg, parts, rule, nweights, progress=progress)
+            else:  # not unit based: on the driver with the in-memory step
+                from partition.partitioner import _refine_step
+
+                parts = _refine_step(step, graph(), order, parts, k, rule, h, seed)
+            parts = np.asarray(parts, dtype=np.int64)
+            ck.save(key, {"parts": parts})
+            stage(f"{name}: {step}", t, where="spark" if step in UNIT_STEPS else "driver")
+        final = _cut(spark, sg, parts)
+        start_rows.append({"start": name, "raw_cut": raw, "cut": final})
+        if best is None or final < best[0]:
+            best = (final, name, parts, order)
+    final, chosen, parts, order = best
+    loads = np.bincount(parts, weights=nw_ones, minlength=k)
+    report = {
+        "engine": "spark",
+        "mode": mode,
+        "k": k,
+        "imbalance_allowed": eps,
+        "seed": int(seed),
+        "options": {"affinity": affinity, "linkage": linkage, "hub_cap": int(hub_cap),
+                    "starts": list(starts), "refine": list(steps), "collect_edges": collect_edges},
+        "graph": {"nodes": sg.n, "edges": sg.m, "source": sg.source},
+        "balance": {"cap": int(rule.cap), "floor": int(rule.floor), "exact": bool(rule.exact),
+                    "balanced": bool(rule.check(loads)), "max_load": int(loads.max())},
+        "hierarchy": {"rounds": h.rounds, "clusters": [int(x) for x in h.sizes], "edges": [int(x) for x in h.edges]},
+        "starts": start_rows,
+        "chosen_start": chosen,
+        "cut": int(final),
+        "cut_fraction": round(final / sg.m, 6) if sg.m and not sg.weighted else None,
+        "stages": rows,
+        "seconds": round(sum(r["seconds"] for r in rows), 4),
+    }
+    return parts, order, report
+
+
+def write_assignment(spark, sg, parts, output, fmt="parquet"):
+    """Write ``id, shard`` rows to ``output`` (a folder) atomically: temporary folder beside it, then rename.
+
+    Parameters
+    ----------
+    spark : SparkSession
+    sg : partition.spark.io.SparkGraph
+    parts : ndarray of int64
+    output : str or path-like
+    fmt : {"parquet", "csv"}
+
+    Raises
+    ------
+    ParameterError
+        For an unknown format.
+    """
+    if fmt not in ("parquet", "csv"):
+        raise ParameterError(f"output format must be parquet or csv, got {fmt!r}")
+    out = Path(output)
+    out.parent.mkdir(parents=True, exist_ok=True)
+    tmp = out.with_name(f".{out.name}.tmp-{os.getpid()}")
+    if tmp.exists():
+        shutil.rmtree(tmp)
+    sh = spark.createDataFrame(pd.DataFrame({"node": np.arange(len(parts), dtype=np.int64),
+                                             "shard": np.asarray(parts, dtype=np.int64)}))
+    table = sg.nodes.join(sh, "node").orderBy("node").select("id", "shard")
+    if fmt == "parquet":
+        table.write.parquet(str(tmp))
+    else:
+        table.coalesce(1).write.option("header", True).csv(str(tmp))
+    old = None
+    if out.exists():
+        old = out.with_name(f".{out.name}.old-{os.getpid()}")
+        out.rename(old)
+    tmp.rename(out)
+    if old is not None:
+        shutil.rmtree(old, ignore_errors=True)
+
+
+def run_spark(graph_path, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum", hub_cap=DEFAULT_HUB_CAP,
+              mode="distributed", fmt="auto", weighted=False, node_weights=None, allow_isolated=False,
+              master=None, output=None, output_format="parquet", report=None, work_dir=None, resume=False,
+              collect_edges=None, progress=None, spark=None):
+    """Run the Spark engine end to end on an edge list; returns the report dict.
+
+    Parameters
+    ----------
+    graph_path : str
+        Edge list (text or Parquet; any path Spark reads).
+    k, eps, seed, affinity, linkage, hub_cap, mode
+        As :func:`partition_spark`.
+    fmt, weighted, node_weights, allow_isolated
+        Input options (:func:`partition.spark.io.read_graph_df`).
+    master : str or None
+        Spark master URL (default ``local[2]`` unless set by ``spark-submit``).
+    output : str or None
+        Folder for the ``id, shard`` table (written atomically).
+    output_format : {"parquet", "csv"}
+    report : str or None
+        JSON report path (written atomically).
+    work_dir : str or None
+        Checkpoints; required for ``resume``.
+    resume : bool
+        Continue an interrupted run from its checkpoints under ``work_dir``.
+    collect_edges : int or None
+        See :func:`partition_spark`.
+    progress : callable or None
+        Called with one dict per stage and hierarchy round.
+    spark : SparkSession or None
+        Use this session instead of building one.
+
+    Returns
+    -------
+    dict
+        The report.
+
+    Raises
+    ------
+    InputError
+        Malformed input (file and line named).
+    ParameterError
+        Bad options; ``resume`` without ``work_dir``.
+    """
+    from partition.spark.io import read_graph_df
+    from partition.spark.session import describe, spark_session
+
+    if resume and work_dir is None:
+        raise ParameterError("resume needs the work directory of the interrupted run")
+    work_dir = work_dir or tempfile.mkdtemp(prefix="shardline-spark-")
+    spark = spark or spark_session(master=master, work_dir=work_dir)
+    t = time.perf_counter()
+    describe(spark, "read")
+    sg = read_graph_df(spark, graph_path, fmt=fmt, weighted=weighted, node_weights=node_weights,
+                       allow_isolated=allow_isolated)
+    read_row = {"stage": "read", "seconds": round(time.perf_counter() - t, 4), "nodes": sg.n, "edges": sg.m}
+    if progress is not None:
+        progress(read_row)
+    parts, order, rep = partition_spark(spark, sg, k, eps, seed, affinity, linkage, hub_cap, mode,
+                                        work_dir=work_dir, resume=resume, collect_edges=collect_edges,
+                                        progress=progress)
+    rep["stages"].insert(0, read_row)
+    rep["seconds"] = round(rep["seconds"] + read_row["seconds"], 4)
+    if output is not None:
+        describe(spark, "write")
+        write_assignment(spark, sg, parts, output, output_format)
+        rep["output"] = str(output)
+    if report is not None:
+        write_text(report, json.dumps(rep, indent=2, default=str) + "\n")
+    return rep

@@ -1,0 +1,405 @@
+"""Refinement on Spark: the in-memory steps' rounds, each unit in a Spark task.
+
+Each step runs the same rounds as its in-memory driver and feeds the same
+numba kernels the same arrays, so the result is identical:
+
+``window`` (:func:`partition.refine.window_dp.refine_window`)
+    Every round frees the boundaries of :func:`~partition.refine.window_dp._free_mask`;
+    each chain of free boundaries is a unit: a task gets the line edges with
+    both ends between the chain's fixed neighbours (``groupBy`` chain) and runs
+    :func:`~partition.refine.window_dp.window_dp_round` on that stretch of the
+    line, shifted to start at 0 (windows and tables shift with it).
+``fm`` (:func:`partition.refine.fm.refine_fm`, schedule ``matched``)
+    and ``swaps`` (:func:`partition.refine.swaps.refine_swaps`, ``matched``).
+    The start-of-round shard cut matrix is a ``groupBy`` over the edges; the
+    driver takes the greedy matching and the settled/stale bookkeeping; each
+    shard pair is a unit: ``cogroup`` of its nodes and of the CSR rows of those
+    nodes (neighbour shards attached), and the task renumbers the nodes it sees
+    in increasing id order (a monotone map, so every "smaller node first" tie
+    rule is kept) and calls :func:`~partition.refine.fm.fm_pair` or
+    :func:`~partition.refine.swaps.swap_pair`.
+
+The driver holds O(n) arrays (positions, shards); the edges stay in Spark.
+Unit weights only for edges here: a weighted graph's integer weights depend on
+whole-graph tests (integrality, totals) that the engine reproduces by
+aggregates (:func:`int_weights`).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from partition.cut import boundaries_from_parts, parts_from_boundaries
+from partition.errors import ParameterError
+from partition.refine.fm import fm_pair
+from partition.refine.schedule import matched_pairs
+from partition.refine.swaps import swap_pair
+from partition.refine.window_dp import _free_mask, default_window, window_dp_round
+from partition.rules import AFFINITY_SCALE
+from partition.spark.frames import to_numpy
+from partition.spark.order import directed_edges
+from partition.spark.session import describe
+
+__all__ = ["int_weights", "spark_window", "spark_fm", "spark_swaps", "UNIT_STEPS"]
+
+UNIT_STEPS = ("window", "fm", "swaps")
+_EMPTY = np.empty(0, dtype=np.int64)
+
+
+def int_weights(spark, sg, kind):
+    """Integer edge weights as the in-memory step computes them; column ``wi`` of the edges.
+
+    ``kind="fm"`` follows :func:`partition.refine.units.fixed_point_weights`,
+    ``kind="cut"`` :func:`partition.refine.gains.cut_weights`. Returns the edges
+    DataFrame with ``wi`` and whether the weights are units (``cut`` then
+    passes empty weight arrays to the kernels, as the in-memory code does).
+    """
+    from pyspark.sql import functions as F
+
+    if not sg.weighted:
+        return sg.edges.withColumn("wi", F.lit(1).cast("long")), True
+    st = sg.edges.agg(F.sum("w").alias("t"), F.max("w").alias("mx"),
+                      F.sum(F.when(F.col("w") != F.floor("w"), 1).otherwise(0)).alias("frac")).collect()[0]
+    total, top, frac = float(2 * (st["t"] or 0.0)), float(st["mx"] or 0.0), int(st["frac"] or 0)
+    if kind == "fm":
+        exact = frac == 0 and total < 2.0**53
+    else:
+        from partition.refine.gains import MAX_EXACT_WEIGHT
+
+        exact = frac == 0 and top < MAX_EXACT_WEIGHT and total < 2.0**62
+    if exact:
+        return sg.edges.withColumn("wi", F.col("w").cast("long")), False
+    # quantise: round half to even of w * 2**20 (rule 1)
+    return sg.edges.withColumn("wi", F.bround(F.col("w") * float(AFFINITY_SCALE), 0).cast("long")), False
+
+
+def _parts_df(spark, parts, nw):
+    return spark.createDataFrame(pd.DataFrame({"node": np.arange(parts.shape[0], dtype=np.int64),
+                                               "shard": parts.astype(np.int64), "nw": nw.astype(np.int64)}))
+
+
+def cut_matrix(spark, wedges, pdf, k):
+    """``k × k`` integer cut matrix of the partition (a ``groupBy`` over the edges)."""
+    from pyspark.sql import functions as F
+
+    su = pdf.select(F.col("node").alias("u"), F.col("shard").alias("su"))
+    sv = pdf.select(F.col("node").alias("v"), F.col("shard").alias("sv"))
+    j = wedges.join(su, "u").join(sv, "v").filter(F.col("su") != F.col("sv"))
+    got = to_numpy(j.groupBy("su", "sv").agg(F.sum("wi").alias("c")), ["su", "sv", "c"])
+    cm = np.zeros((k, k), dtype=np.int64)
+    su_, sv_, c = (got[x].astype(np.int64) for x in ("su", "sv", "c"))
+    np.add.at(cm, (su_, sv_), c)
+    np.add.at(cm, (sv_, su_), c)
+    return cm
+
+
+def _unit_frames(spark, wedges, pdf, pairs):
+    """Nodes and CSR rows of every unit, keyed by ``unit`` (pair index)."""
+    from pyspark.sql import functions as F
+
+    rows = [(int(a), i) for i, (a, b) in enumerate(pairs)] + [(int(b), i) for i, (a, b) in enumerate(pairs)]
+    nodes = pdf.join(F.broadcast(spark.createDataFrame(rows, "shard long, unit long")), "shard").localCheckpoint()
+    xmap = spark.createDataFrame(rows, "sx long, unit long")
+    both = directed_edges(wedges.select("u", "v", F.col("wi").alias("w")))
+    ent = (both.join(pdf.select(F.col("node").alias("x"), F.col("shard").alias("sx")), "x")
+               .join(F.broadcast(xmap), "sx")
+               .join(pdf.select(F.col("node").alias("y"), F.col("shard").alias("sy"), F.col("nw").alias("nwy")), "y")
+               .select("unit", "x", "y", "w", "sy", "nwy")).localCheckpoint()
+    return nodes, ent
+
+
+def _local(nodes, ent):
+    """Local CSR over the unit's nodes and their neighbours, ids in increasing global order."""
+    gn = nodes["node"].to_numpy(np.int64)
+    ex = ent["x"].to_numpy(np.int64)
+    ey = ent["y"].to_numpy(np.int64)
+    ids = np.union1d(gn, ey)
+    loc_n = np.searchsorted(ids, gn)
+    lx, ly = np.searchsorted(ids, ex), np.searchsorted(ids, ey)
+    o = np.lexsort((ly, lx))
+    lx, ly = lx[o], ly[o]
+    w = ent["w"].to_numpy(np.int64)[o]
+    size = ids.shape[0]
+    indptr = np.zeros(size + 1, dtype=np.int64)
+    np.cumsum(np.bincount(lx, minlength=size), out=indptr[1:])
+    parts = np.full(size, -1, dtype=np.int64)
+    nwl = np.zeros(size, dtype=np.int64)
+    parts[ly] = ent["sy"].to_numpy(np.int64)[o]
+    nwl[ly] = ent["nwy"].to_numpy(np.int64)[o]
+    parts[loc_n] = nodes["shard"].to_numpy(np.int64)
+    nwl[loc_n] = nodes["nw"].to_numpy(np.int64)
+    return ids, indptr, ly.astype(np.int32), w, parts, nwl
+
+
+def _unit_round(spark, wedges, pdf, pairs, kernel, schema):
+    nodes, ent = _unit_frames(spark, wedges, pdf, pairs)
+    out = nodes.groupBy("unit").cogroup(ent.groupBy("unit")).applyInPandas(kernel, schema)
+    return out.toPandas()
+
+
+def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, progress=None):
+    """:func:`partition.refine.fm.refine_fm` with ``schedule="matched"``, units in Spark tasks.
+
+    Parameters
+    ----------
+    spark : SparkSession
+    sg : partition.spark.io.SparkGraph
+    parts : ndarray of int64
+    rule : partition.balance.BalanceRule
+    nw : ndarray of int64
+        Node weights (ones when unweighted).
+    seed, max_passes, max_stall : int
+        As :func:`partition.refine.fm.refine_fm`.
+
+    Returns
+    -------
+    ndarray of int64
+
+    References
+    ----------
+    C. M. Fiduccia and R. M. Mattheyses, "A linear-time heuristic for improving
+    network partitions", DAC 1982.
+    """
+    k = rule.k
+    cap, floor = int(rule.cap), int(rule.floor)
+    wedges, _ = int_weights(spark, sg, "fm")
+    wedges = wedges.select("u", "v", "wi").localCheckpoint()
+    parts = np.asarray(parts, dtype=np.int64).copy()
+    settled = np.zeros((k, k), dtype=bool)
+    pairs_now = []
+
+    def kernel(nodes, ent):
+        if nodes.shape[0] == 0:
+            return pd.DataFrame({"node": _EMPTY, "shard": _EMPTY, "unit": _EMPTY, "gain": _EMPTY})
+        u = int(nodes["unit"].iloc[0])
+        a, b = pairs_now[u]
+        ids, indptr, indices, w, lp, lnw = _local(nodes, ent)
+        loc = np.searchsorted(ids, np.sort(nodes["node"].to_numpy(np.int64)))
+        la = loc[lp[loc] == a]
+        lb = loc[lp[loc] == b]
+        mov = np.concatenate((la, lb))
+        new, g = fm_pair(indptr, indices, w, lnw, lp, a, b, mov, cap, cap, floor, floor, max_passes, max_stall)
+        return pd.DataFrame({"node": ids[mov], "shard": new.astype(np.int64),
+                             "unit": np.full(mov.shape[0], u, dtype=np.int64),
+                             "gain": np.full(mov.shape[0], int(g), dtype=np.int64)})
+
+    for r in range(k):
+        describe(spark, f"refine fm: round {r + 1}")
+        pdf = _parts_df(spark, parts, nw).localCheckpoint()
+        cm = cut_matrix(spark, wedges, pdf, k)
+        live = (cm > 0) & ~settled
+        if not live.any():
+            break
+        pairs = [(a, b) for a, b in matched_pairs(np.where(live, cm, 0)) if live[a, b]]
+        pairs_now[:] = pairs
+        res = _unit_round(spark, wedges, pdf, pairs, kernel, "node long, shard long, unit long, gain long")
+        changed = [False] * len(pairs)
+        if len(res):
+            nodes = res["node"].to_numpy(np.int64)
+            new = res["shard"].to_numpy(np.int64)
+            diff = parts[nodes] != new
+            for u in np.unique(res["unit"].to_numpy(np.int64)[diff]):
+                changed[int(u)] = True
+            parts[nodes] = new
+        for (a, b), ch in zip(pairs, changed):
+            if not ch:
+                settled[a, b] = settled[b, a] = True
+        for (a, b), ch in zip(pairs, changed):
+            if ch:
+                settled[[a, b], :] = False
+                settled[:, [a, b]] = False
+        if progress is not None:
+            progress({"stage": f"fm round {r + 1}", "pairs": len(pairs), "changed": int(sum(changed))})
+    return parts
+
+
+def spark_swaps(spark, sg, parts, rule, node_weights, max_rounds=20, tol=1e-3, iterations=4, progress=None):
+    """:func:`partition.refine.swaps.refine_swaps` with ``schedule="matched"``, units in Spark tasks.
+
+    Parameters
+    ----------
+    spark : SparkSession
+    sg : partition.spark.io.SparkGraph
+    parts : ndarray of int64
+    rule : partition.balance.BalanceRule
+    node_weights : ndarray of int64 or None
+        ``None`` for unit node weights (the kernel then gets an empty array).
+    max_rounds, tol, iterations
+        As :func:`partition.refine.swaps.refine_swaps`.
+
+    Returns
+    -------
+    ndarray of int64
+
+    References
+    ----------
+    B. W. Kernighan and S. Lin, "An efficient heuristic procedure for
+    partitioning graphs", Bell System Technical Journal 49(2), 1970.
+    """
+    k = rule.k
+    cap, floor = int(rule.cap), int(rule.floor)
+    wedges, unit_w = int_weights(spark, sg, "cut")
+    wedges = wedges.select("u", "v", "wi").localCheckpoint()
+    parts = np.asarray(parts, dtype=np.int64).copy()
+    nw = np.ones(parts.shape[0], dtype=np.int64) if node_weights is None else node_weights
+    pairs_now = []
+
+    def kernel(nodes, ent):
+        if nodes.shape[0] == 0:
+            return pd.DataFrame({"node": _EMPTY, "shard": _EMPTY, "unit": _EMPTY, "gain": _EMPTY})
+        u = int(nodes["unit"].iloc[0])
+        a, b = pairs_now[u]
+        ids, indptr, indices, w, lp, lnw = _local(nodes, ent)
+        loc = np.searchsorted(ids, np.sort(nodes["node"].to_numpy(np.int64)))
+        la = loc[lp[loc] == a]
+        lb = loc[lp[loc] == b]
+        rank = np.zeros(ids.shape[0], dtype=np.int64)
+        rank[la] = np.arange(la.shape[0])
+        rank[lb] = np.arange(lb.shape[0])
+        moved, target, g = swap_pair(indptr, indices, _EMPTY if unit_w else w, lp.astype(np.int32), rank,
+                                     _EMPTY if node_weights is None else lnw, a, b, la, lb, cap, floor, iterations)
+        return pd.DataFrame({"node": ids[moved], "shard": np.asarray(target, dtype=np.int64),
+                             "unit": np.full(moved.shape[0], u, dtype=np.int64),
+                             "gain": np.full(moved.shape[0], int(g), dtype=np.int64)})
+
+    pdf = _parts_df(spark, parts, nw).localCheckpoint()
+    cm = cut_matrix(spark, wedges, pdf, k)
+    cut = int(cm.sum()) // 2
+    stale = np.zeros((k, k), dtype=bool)
+    rounds = 0
+    while rounds < max_rounds and cut > 0 and k > 1:
+        describe(spark, f"refine swaps: round {rounds + 1}")
+        mat = cm
+        pairs = matched_pairs(np.where(stale, 0, mat))
+        if not pairs:
+            break
+        pairs_now[:] = pairs
+        res = _unit_round(spark, wedges, pdf, pairs, kernel, "node long, shard long, unit long, gain long")
+        gains = [0] * len(pairs)
+        moved = [0] * len(pairs)
+        if len(res):
+            units = res["unit"].to_numpy(np.int64)
+            g = res.groupby("unit")["gain"].first()
+            for u, val in g.items():
+                gains[int(u)] = int(val)
+            for u, cnt in zip(*np.unique(units, return_counts=True)):
+                moved[int(u)] = int(cnt)
+            parts[res["node"].to_numpy(np.int64)] = res["shard"].to_numpy(np.int64)
+        cut -= sum(gains)
+        rounds += 1
+        for (a, b), mv in zip(pairs, moved):
+            if mv:
+                stale[[a, b], :] = False
+                stale[:, [a, b]] = False
+        for (a, b), g in zip(pairs, gains):
+            if g <= tol * mat[a, b]:
+                stale[a, b] = stale[b, a] = True
+        if progress is not None:
+            progress({"stage": f"swaps round {rounds}", "pairs": len(pairs), "gain": int(sum(gains))})
+        if rounds < max_rounds and cut > 0:
+            pdf = _parts_df(spark, parts, nw).localCheckpoint()
+            cm = cut_matrix(spark, wedges, pdf, k)
+    return parts
+
+
+def spark_window(spark, sg, order, parts, rule, node_weights, w=None, max_rounds=16, progress=None):
+    """:func:`partition.refine.window_dp.refine_window` (``chain_length=1``), chains in Spark tasks.
+
+    Parameters
+    ----------
+    spark : SparkSession
+    sg : partition.spark.io.SparkGraph
+    order : ndarray of int64
+    parts : ndarray of int64
+        A line cut of ``order`` (otherwise returned unchanged, as in memory).
+    rule : partition.balance.BalanceRule
+    node_weights : ndarray of int64 or None
+    w : int or None
+        Window half-width (default :func:`~partition.refine.window_dp.default_window`).
+    max_rounds : int
+
+    Returns
+    -------
+    ndarray of int64
+
+    References
+    ----------
+    K. Aydin, M. Bateni and V. Mirrokni, "Distributed balanced partitioning via
+    linear embedding", WSDM 2016.
+    """
+    from pyspark.sql import functions as F
+
+    k = rule.k
+    n = order.shape[0]
+    try:
+        b = boundaries_from_parts(order, parts, k)
+    except ParameterError:
+        return parts
+    w = default_window(n, k) if w is None else int(w)
+    cap, floor = int(rule.cap), int(rule.floor)
+    wedges, unit_w = int_weights(spark, sg, "cut")
+    nwv = np.ones(n, dtype=np.int64) if node_weights is None else node_weights
+    prefix = np.zeros(n + 1, dtype=np.int64)
+    np.cumsum(nwv[order], out=prefix[1:])
+    pos = np.empty(n, dtype=np.int64)
+    pos[order] = np.arange(n, dtype=np.int64)
+    describe(spark, "refine window: line edges")
+    pt = spark.createDataFrame(pd.DataFrame({"node": np.arange(n, dtype=np.int64), "pos": pos}))
+    le = (wedges.join(pt.select(F.col("node").alias("u"), F.col("pos").alias("pu")), "u")
+                .join(pt.select(F.col("node").alias("v"), F.col("pos").alias("pv")), "v")
+                .select(F.least("pu", "pv").alias("p"), F.greatest("pu", "pv").alias("q"), "wi")).localCheckpoint()
+    state = {}
+
+    def assign(batches):
+        fpos = state["fpos"]
+        for pdf in batches:
+            p = pdf["p"].to_numpy(np.int64)
+            q = pdf["q"].to_numpy(np.int64)
+            seg = np.searchsorted(fpos, p, side="right") - 1
+            segq = np.searchsorted(fpos, q, side="right") - 1
+            keep = (seg == segq) & state["is_chain"][seg]
+            yield pd.DataFrame({"chain": seg[keep], "p": p[keep], "q": q[keep], "wi": pdf["wi"].to_numpy(np.int64)[keep]})
+
+    def solve(c, p, q, ew):
+        full, fixed, bb = state["full"], state["fixed"], state["b"]
+        i0, i1 = int(fixed[c]), int(fixed[c + 1])
+        js = np.arange(i0, i1 - 1)
+        left, right = int(full[i0]), int(full[i1])
+        o = np.lexsort((q, p))
+        out, g = window_dp_round(p[o] - left, q[o] - left, _EMPTY if unit_w else ew[o],
+                                 prefix[left:right + 1], bb[js] - left, np.ones(js.shape[0], dtype=bool),
+                                 w, cap, floor)
+        return js, out + left, g
+
+    def task(pdf):
+        c = int(pdf["chain"].iloc[0])
+        js, out, _ = solve(c, pdf["p"].to_numpy(np.int64), pdf["q"].to_numpy(np.int64), pdf["wi"].to_numpy(np.int64))
+        return pd.DataFrame({"j": js.astype(np.int64), "b": out.astype(np.int64)})
+
+    idle = 0
+    for r in range(max_rounds if k > 1 else 0):
+        describe(spark, f"refine window: round {r + 1}")
+        free = _free_mask(k, r, 1)
+        full = np.concatenate(([0], b, [n]))
+        fixed = np.concatenate(([0], np.flatnonzero(~free) + 1, [k]))
+        fpos = full[fixed]
+        is_chain = np.append(np.diff(fixed) >= 2, False)
+        state.update(full=full, fixed=fixed, fpos=fpos, is_chain=is_chain, b=b)
+        res = le.mapInPandas(assign, "chain long, p long, q long, wi long").groupBy("chain").applyInPandas(
+            task, "j long, b long").toPandas()
+        nb = b.copy()
+        nb[res["j"].to_numpy(np.int64)] = res["b"].to_numpy(np.int64)
+        done = set(np.unique(res["j"].to_numpy(np.int64)).tolist()) if len(res) else set()
+        for c in np.flatnonzero(is_chain[:-1]):  # chains without any edge: solved on the driver
+            i0 = int(fixed[c])
+            if i0 not in done:
+                js, out, _ = solve(int(c), _EMPTY, _EMPTY, _EMPTY)
+                nb[js] = out
+        idle = idle + 1 if np.array_equal(nb, b) else 0
+        b = nb
+        if progress is not None:
+            progress({"stage": f"window round {r + 1}", "moved": int(np.count_nonzero(nb != full[1:-1]))})
+        if idle >= 2:
+            break
+    return np.asarray(parts_from_boundaries(order, b, k), dtype=np.int64)
