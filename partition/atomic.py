@@ -19,7 +19,9 @@ def atomic_path(path):
     path = os.fspath(path)
     folder = os.path.dirname(os.path.abspath(path))
     os.makedirs(folder, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix="." + os.path.basename(path) + ".", suffix=".tmp", dir=folder)
+    # The temporary name ends with the target's name, so writers that choose a
+    # format by extension (.csv, .parquet, .gz) see the same extension.
+    fd, tmp = tempfile.mkstemp(prefix=".shardline-tmp-", suffix="-" + os.path.basename(path), dir=folder)
     os.close(fd)
     try:
         yield tmp
@@ -31,6 +33,17 @@ def atomic_path(path):
         with contextlib.suppress(FileNotFoundError):
             os.unlink(tmp)
         raise
+
+
+@contextlib.contextmanager
+def atomic_paths(paths):
+    """Yield temporary paths for several targets; rename them all only if every write succeeds.
+
+    ``None`` entries are passed through as ``None``. On any exception every
+    temporary file is removed and no target is touched.
+    """
+    with contextlib.ExitStack() as stack:
+        yield [None if p is None else stack.enter_context(atomic_path(p)) for p in paths]
 
 
 def _umask():

@@ -121,8 +121,6 @@ def test_bad_files_exit_2_name_file_and_line_and_write_nothing(capsys, tmp_path,
     assert sorted(p.name for p in tmp_path.iterdir()) == [name]
 
 
-@pytest.mark.xfail(strict=True, reason="run writes the order table before write_assignment rejects "
-                   "a Parquet name ending in .gz, so an order file is left behind")
 def test_rejected_output_name_leaves_no_other_table(capsys, tmp_path, graph_file):
     status, _, err = shardline(capsys, "run", graph_file, "-k", "2", "-o", tmp_path / "out.parquet.gz",
                                "--order-output", tmp_path / "order.csv", "--quiet")

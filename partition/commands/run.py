@@ -75,14 +75,18 @@ def run(args) -> int:
         "outputs": {"assignment": str(args.output), "report": str(report_path),
                     "order": args.order_output, "hierarchy": args.hierarchy_output},
     }
-    if args.order_output:
-        write_table(args.order_output, order_table(graph, result.order))
-    if args.hierarchy_output:
-        write_table(args.hierarchy_output, hierarchy_table(graph, result.hierarchy))
-    write_assignment(args.output, graph, result.parts)
-    from partition.atomic import write_text
+    from partition.atomic import atomic_paths
 
-    write_text(report_path, json.dumps(report, indent=2, sort_keys=True) + "\n")
+    # Every output is written to a temporary file first; all are renamed into
+    # place only after all of them were written (no partial output on error).
+    with atomic_paths([args.output, report_path, args.order_output, args.hierarchy_output]) as tmp:
+        write_assignment(tmp[0], graph, result.parts)
+        if tmp[2] is not None:
+            write_table(tmp[2], order_table(graph, result.order))
+        if tmp[3] is not None:
+            write_table(tmp[3], hierarchy_table(graph, result.hierarchy))
+        with open(tmp[1], "w", encoding="utf-8") as fh:
+            fh.write(json.dumps(report, indent=2, sort_keys=True) + "\n")
     if args.json:
         print(json.dumps(report, indent=2, sort_keys=True))
     else:
