@@ -67,15 +67,18 @@ def main(argv=None):
         lines = len(src)
         size_mb = os.path.getsize(path) / 1e6
         del src, dst
-        parse_t, build_t = [], []
+        parse_t, build_t, cpu_t = [], [], []
         for _ in range(args.repeat):
+            c0 = time.process_time()
             t0 = time.perf_counter()
             s, d, _ = read_edges(path)
             t1 = time.perf_counter()
+            c1 = time.process_time()
             g = build_graph(s, d, source=str(path))
             t2 = time.perf_counter()
             parse_t.append(t1 - t0)
             build_t.append(t2 - t1)
+            cpu_t.append(c1 - c0)
             del s, d
         parse, build = min(parse_t), min(build_t)
         bytes_per_edge = (g.indices.nbytes + (0 if g.edge_weights is None else g.edge_weights.nbytes)) / g.m
@@ -98,6 +101,8 @@ def main(argv=None):
     print(" | ".join("---" for _ in hdr))
     for r in rows:
         print(" | ".join("" if x is None else (f"{x:.3f}" if isinstance(x, float) else str(x)) for x in r))
+    print(f"parse CPU seconds (all threads), best of {args.repeat}: {min(cpu_t):.3f}")
+    print(f"load average while measuring: {os.getloadavg()[0]:.1f} (wall times are only meaningful on a quiet machine)")
     print(f"peak RSS of this process: {_peak_rss_mb():.0f} MB")
     print("goals: parse >= 3 M edges/s; graph <= 24 B per undirected edge + 16 B per node")
 
