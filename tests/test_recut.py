@@ -17,7 +17,7 @@ from partition.generators import grid2d, write_edgelist
 from partition.graph import build_graph
 from partition.partitioner import partition_graph
 from partition.placement.bounded_hash import mod_assign
-from partition.placement.recut import read_order, recut
+from partition.placement.recut import band_floor, read_order, recut
 from partition.tables import order_table, write_table
 
 DATASETS = Path(__file__).resolve().parents[2] / "shared" / "datasets"
@@ -41,6 +41,27 @@ def test_line_recut_keeps_the_predicted_share():
         new = np.arange(n) * (k + 1) // n
         best = max(np.sum(np.array(names)[new] == old) for names in itertools.permutations(range(k + 1)))
         assert np.sum(parts == old) == best  # reference: exhaustive search over namings
+
+
+def test_band_floor_worked_examples():
+    # ⌊(1 − ε)·W/k⌋ − w_max + 1, the mirror image of the cap ⌈(1 + ε)·W/k⌉ + w_max − 1 (hand counts)
+    assert band_floor(None, 4, 0.1, 100) == 22  # ⌊0.9 · 25⌋ = ⌊22.5⌋
+    assert band_floor(None, 4, 0.0, 10) == 2  # ⌊10/4⌋
+    assert band_floor(np.array([5] + [1] * 95), 4, 0.1, 96) == 18  # ⌊0.9 · 100/4⌋ − 5 + 1
+    assert band_floor(None, 3, 2.0, 9) == 0  # never negative
+
+
+def test_floor_rule_bounds_only_the_largest_shard():
+    g = build_graph(*grid2d(20, 30))
+    old, order = _mesh_case(g, 8)
+    for floor in ("band", "rule"):
+        parts, st_ = recut(g, order, 9, eps=0.05, previous=old, move_cost=4.0, floor=floor)
+        loads = np.bincount(parts, minlength=9)
+        assert balance_rule(None, 9, 0.05, g.n).check(loads)
+        assert st_["floor"] == (band_floor(None, 9, 0.05, g.n) if floor == "band" else 0)
+        assert loads.min() >= st_["floor"]
+    with pytest.raises(ParameterError, match="floor"):
+        recut(g, order, 9, floor="none")
 
 
 def test_mod_hash_moved_fraction_formula():
@@ -72,6 +93,7 @@ def test_recut_on_a_mesh_moves_far_fewer_nodes_than_rehashing(eps):
     loads = np.bincount(parts, minlength=k + 1)
     assert rule.check(loads), rule.violations(loads)
     assert st_["balanced"] and parts.max() == k  # the new shard is in use
+    assert loads.min() >= band_floor(None, k + 1, eps, g.n) == st_["floor"]  # and holds its share
     # the refinement only lowers the cut of the plain line cut
     assert st_["cut"] <= st_["cut_line"]
 

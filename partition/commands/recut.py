@@ -3,7 +3,8 @@
 ``shardline recut ORDER_FILE GRAPH -k K2 -o OUT [--previous OLD]`` reads the
 ``node,position`` order written by ``shardline run --order-output``, cuts it
 into ``K2`` pieces of equal weight, refines the cut (window DP, then pairwise
-rounds), and with ``--previous`` renames the shards to match the current
+rounds, keeping every shard between the band floor and the cap unless
+``--floor rule``), and with ``--previous`` renames the shards to match the current
 placement and lets the rounds weigh each move at ``--move-cost`` (see
 :mod:`partition.placement.recut` and :mod:`partition.placement.stable`).
 Writes ``OUT`` (node→shard) and ``OUT.report.json`` atomically and prints the
@@ -34,6 +35,9 @@ def add_arguments(parser):
     parser.add_argument("--move-cost", type=float, default=1.0,
                         help="with --previous: edge weight a moved unit of node weight costs (default 1.0)")
     parser.add_argument("--seed", type=int, default=0, help="orders the refinement rounds (default 0)")
+    parser.add_argument("--floor", choices=("band", "rule"), default="band",
+                        help="band: keep every shard at least ⌊(1−ε)W/k⌋ − w_max + 1 so new shards fill up; "
+                             "rule: bound only the largest shard, as the balance rule does (default band)")
     parser.add_argument("--no-refine", action="store_true", help="plain line cut (and renaming) only")
     parser.add_argument("-o", "--output", required=True, help="node→shard file to write (.csv, .tsv, .parquet)")
     parser.add_argument("--report", help="JSON report path (default: OUTPUT.report.json)")
@@ -57,7 +61,7 @@ def run(args) -> int:
     order = read_order(args.order, graph)
     previous = read_assignment(args.previous, graph) if args.previous else None
     parts, stats = recut(graph, order, k, eps=eps, previous=previous, move_cost=args.move_cost,
-                         seed=args.seed, refine=not args.no_refine)
+                         seed=args.seed, refine=not args.no_refine, floor=args.floor)
     figures = score(graph, parts, k=k, eps=eps).to_dict()
     report = {
         "tool": f"shardline {__version__}",
@@ -69,7 +73,7 @@ def run(args) -> int:
         "imbalance_allowed": eps,
         "seed": args.seed,
         "options": {"method": "recut", "move_cost": args.move_cost if args.previous else None,
-                    "refine": not args.no_refine},
+                    "refine": not args.no_refine, "floor": args.floor},
         "recut": stats,
         "result": figures,
         "outputs": {"assignment": str(args.output), "report": str(report_path)},
@@ -90,6 +94,7 @@ def run(args) -> int:
         ("cut fraction: line → window → final", " → ".join(
             f"{c / max(graph.total_edge_weight(), 1e-300):.4f}" for c in (stats["cut_line"], stats["cut_window"], stats["cut"]))),
         ("imbalance (allowed)", f"{figures['imbalance']:.4f} ({eps})"),
+        ("smallest / largest shard", f"{stats['min_load']:,} / {stats['max_load']:,} (floor {stats['floor']:,})"),
     ]
     st = stats.get("stability")
     if st is not None:

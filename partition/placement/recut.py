@@ -10,7 +10,10 @@ the rounds carry the move-cost bias of :mod:`partition.placement.stable` and
 the shards are first renamed to keep the most nodes in place, so the
 refinement does not undo the stability that the shared line gives. Without
 one, the rounds are plain pairwise FM (Aydin, Bateni & Mirrokni, WSDM 2016,
-for cutting and refining a linear embedding).
+for cutting and refining a linear embedding). By default the refinement keeps
+every shard between :func:`band_floor` and the cap: the balance rule bounds
+only the largest shard, and with a move cost the rounds would otherwise let a
+new shard stay nearly empty (a node is cheapest where it was).
 
 Why a shared line moves few nodes. Cutting a line of ``n`` unit nodes into
 ``k`` and into ``k + 1`` equal pieces, old piece ``j`` overlaps new pieces
@@ -31,7 +34,10 @@ reported with the file and line.
 
 from __future__ import annotations
 
+import dataclasses
+import math
 import re
+from fractions import Fraction
 
 import numpy as np
 
@@ -44,7 +50,7 @@ from partition.refine.fm import refine_fm
 from partition.refine.gains import cut_total, cut_weights
 from partition.refine.window_dp import refine_window
 
-__all__ = ["read_order", "recut"]
+__all__ = ["read_order", "recut", "band_floor"]
 
 
 def _as_position_message(detail):
@@ -92,7 +98,37 @@ def read_order(path, graph):
     return order
 
 
-def recut(graph, order, k, eps=0.0, previous=None, move_cost=1.0, seed=0, refine=True, window=None):
+def band_floor(node_weights, k, eps, n_nodes):
+    """Smallest shard weight of the symmetric band: ``max(0, ⌊(1 − ε)·W/k⌋ − w_max + 1)``.
+
+    The balance rule bounds only the largest shard (for ε > 0); a re-cut that
+    adds shards should also fill them, so the re-cut keeps this lower bound
+    too (mirroring the cap's ``⌈(1 + ε)·W/k⌉ + w_max − 1``). ε is read as the
+    decimal it prints as, as in :func:`partition.balance.balance_rule`.
+
+    Parameters
+    ----------
+    node_weights : array_like of int or None
+        ``None`` for unit weights.
+    k : int
+    eps : float
+    n_nodes : int
+
+    Returns
+    -------
+    int
+    """
+    if node_weights is None:
+        total, wmax = int(n_nodes), 1
+    else:
+        w = np.asarray(node_weights)
+        total, wmax = int(w.sum()), max(int(w.max(initial=1)), 1)
+    share = (1 - Fraction(repr(float(eps)))) * Fraction(total, k)
+    return max(0, math.floor(share) - wmax + 1)
+
+
+def recut(graph, order, k, eps=0.0, previous=None, move_cost=1.0, seed=0, refine=True, window=None,
+          floor="band"):
     """Cut a stored line order into ``k`` balanced shards and refine, near a current placement.
 
     Parameters
@@ -118,13 +154,18 @@ def recut(graph, order, k, eps=0.0, previous=None, move_cost=1.0, seed=0, refine
         Run the window DP and the pairwise rounds (default True).
     window : int or None
         Half-width of the window DP (default :func:`partition.refine.window_dp.default_window`).
+    floor : {"band", "rule"}
+        ``"band"``: the refinement also keeps every shard at least
+        :func:`band_floor` (so added shards take their share); ``"rule"``:
+        only the balance rule (which for ε > 0 bounds the largest shard only).
 
     Returns
     -------
     parts : ndarray of int64, shape (n,)
     stats : dict
         ``k``, ``eps``, ``cut_line`` (cut weight of the plain line cut),
-        ``cut_window`` (after the window DP), ``cut`` (final), and with
+        ``cut_window`` (after the window DP), ``cut`` (final), ``floor`` (the
+        lower bound kept), ``min_load``, ``max_load``, and with
         ``previous`` the :func:`partition.placement.stable.stabilise` figures
         under ``stability`` (``moved_fraction`` among them); ``balanced``.
 
@@ -145,13 +186,17 @@ def recut(graph, order, k, eps=0.0, previous=None, move_cost=1.0, seed=0, refine
     k = check_parts(k, graph.n)
     eps = check_imbalance(eps)
     rule = balance_rule(graph.node_weights, k, eps, n_nodes=graph.n)
+    if floor not in ("band", "rule"):
+        raise ParameterError(f"floor must be 'band' or 'rule', got {floor!r}")
+    if floor == "band":
+        rule = dataclasses.replace(rule, floor=max(rule.floor, band_floor(graph.node_weights, k, eps, graph.n)))
     w_int, scale = cut_weights(graph.edge_weights)
 
     def cut(p):
         return cut_total(graph.indptr, graph.indices, w_int, p) / scale
 
     parts = np.asarray(line_cut(order, graph.node_weights, k, eps), dtype=np.int64)
-    stats = {"k": k, "eps": eps, "cut_line": cut(parts)}
+    stats = {"k": k, "eps": eps, "cut_line": cut(parts), "floor": rule.floor}
     if refine and k > 1:
         parts, wst = refine_window(graph, order, parts, k, rule, w=window)
         parts = parts.astype(np.int64)
@@ -164,5 +209,6 @@ def recut(graph, order, k, eps=0.0, previous=None, move_cost=1.0, seed=0, refine
         parts, _ = refine_fm(graph, parts, rule, schedule="matched", seed=seed)
     loads = np.bincount(parts, weights=graph.node_weight_array(), minlength=k)
     stats["cut"] = cut(parts)
-    stats["balanced"] = bool(rule.check(loads))
+    stats["balanced"] = bool(rule.check(loads) and loads.min() >= rule.floor)
+    stats["min_load"], stats["max_load"] = int(loads.min()), int(loads.max())
     return np.asarray(parts, dtype=np.int64), stats
