@@ -26,7 +26,8 @@ then the old one removed). The input graph must exist: it is looked for where
 the report names it (as given, then relative to the folder the run was started
 from, inferred from the report's own recorded path), and a graph file passed
 explicitly must have the same checksum as the one the report names (or the
-checksum the report records, when it records one). :func:`verify_export`
+checksum the report records, when it records one); when the named file is
+gone and the report records no checksum, the file passed is taken as it is. :func:`verify_export`
 checks a written folder against its manifest and, optionally, a graph file.
 Checksums: SHA-256 (NIST FIPS 180-4).
 """
