@@ -48,7 +48,8 @@ def spark_session(master=None, work_dir=None, app_name="shardline", shuffle_part
     active = SparkSession.getActiveSession()
     builder = SparkSession.builder.appName(app_name)
     if active is None:
-        if master is None and "spark.master" not in os.environ.get("PYSPARK_SUBMIT_ARGS", ""):
+        launched = "PYSPARK_GATEWAY_PORT" in os.environ  # spark-submit already chose the master
+        if master is None and not launched:
             master = "local[2]"
         if master is not None:
             builder = builder.master(master)

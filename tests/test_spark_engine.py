@@ -1,0 +1,213 @@
+"""Tests of partition.spark: the Spark engine gives exactly the in-memory engine's result.
+
+The reference is the in-memory engine itself (partition.partitioner.partition_graph
+and its stages), which the project tests against published formulas and
+reference libraries; here every array must be equal, bit for bit. Graphs are
+small scenarios built in the tests (grids, cliques, a star) and one public
+graph in the resume test's sibling benchmark (jobs/bench_spark.py --agreement).
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+pytest.importorskip("pyspark")
+
+from partition.affinity import edge_affinity  # noqa: E402
+from partition.edgelist import read_graph  # noqa: E402
+from partition.errors import InputError  # noqa: E402
+from partition.hierarchy import build_hierarchy  # noqa: E402
+from partition.partitioner import partition_graph  # noqa: E402
+
+pytestmark = pytest.mark.spark
+ROOT = Path(__file__).resolve().parents[1]
+UNIT = ("window", "fm", "swaps")
+
+
+@pytest.fixture(scope="module")
+def spark(tmp_path_factory):
+    from partition.spark.session import spark_session
+
+    s = spark_session(work_dir=tmp_path_factory.mktemp("spark"))
+    yield s
+    s.stop()
+
+
+def _grid(r, c, offset=0):
+    idx = np.arange(r * c).reshape(r, c) + offset
+    a = np.concatenate((idx[:, :-1].ravel(), idx[:-1, :].ravel()))
+    b = np.concatenate((idx[:, 1:].ravel(), idx[1:, :].ravel()))
+    return a, b
+
+
+def _write(path, a, b, comments=True):
+    lines = ["# scenario: a made-up road network", "% second comment style"] if comments else []
+    seps = [" ", "\t", ","]
+    lines += [f"{x}{seps[i % 3]}{y}" for i, (x, y) in enumerate(zip(a, b))]
+    Path(path).write_text("\n".join(lines) + "\n")
+    return str(path)
+
+
+@pytest.fixture(scope="module")
+def mixed_graph(tmp_path_factory):
+    """A 12×12 grid, a separate triangle, an isolated node (self-loop line), ids with gaps, one duplicate."""
+    a, b = _grid(12, 12)
+    a, b = a * 3 + 7, b * 3 + 7  # ids with gaps
+    a = np.concatenate((a, [1000, 1001, 1002, 5000, 7, 10]))
+    b = np.concatenate((b, [1001, 1002, 1000, 5000, 10, 7]))  # 5000: self-loop only; (7,10) twice
+    return _write(tmp_path_factory.mktemp("g") / "mixed.txt", a, b)
+
+
+def _run(spark, path, k, mode, tmp, **kw):
+    from partition.spark.engine import partition_spark
+    from partition.spark.io import read_graph_df
+
+    sg = read_graph_df(spark, path, **{x: kw.pop(x) for x in ("node_weights", "allow_isolated") if x in kw})
+    return partition_spark(spark, sg, k, seed=kw.pop("seed", 0), mode=mode, work_dir=tmp, **kw)
+
+
+def test_input_normalised_like_memory(spark, mixed_graph, tmp_path):
+    from partition.spark.io import collect_graph, read_graph_df
+
+    ref = read_graph(mixed_graph)
+    got = collect_graph(read_graph_df(spark, mixed_graph))
+    assert np.array_equal(got.ids, ref.ids)
+    assert np.array_equal(got.indptr, ref.indptr) and np.array_equal(got.indices, ref.indices)
+    assert got.n == 12 * 12 + 4  # grid, triangle, the self-loop node kept
+
+
+def test_affinity_and_hierarchy_match_memory(spark, mixed_graph, tmp_path):
+    from partition.spark.affinity import edge_affinity_df
+    from partition.spark.frames import to_numpy
+    from partition.spark.hierarchy import build_hierarchy_df
+    from partition.spark.io import read_graph_df
+
+    g = read_graph(mixed_graph)
+    sg = read_graph_df(spark, mixed_graph)
+    aff = edge_affinity_df(sg)
+    got = to_numpy(aff, ["u", "v", "aff"], sort=["u", "v"])
+    ref = edge_affinity(g)
+    up = g.rows() < g.indices
+    assert np.array_equal(got["aff"], ref[up])
+    # collect_edges=0: every round runs as Spark jobs (pointer jumping, contraction)
+    h = build_hierarchy_df(spark, aff, sg.n, seed=4, work=tmp_path, collect_edges=0)
+    hr = build_hierarchy(g, ref, seed=4)
+    assert h.sizes == hr.sizes and h.edges == hr.edges
+    for x, y in zip(h.parents, hr.parents):
+        assert np.array_equal(x, y)
+    for x, y in zip(h.picked, hr.picked):
+        assert all(np.array_equal(p, q) for p, q in zip(x, y))
+
+
+def test_distributed_mode_matches_memory(spark, mixed_graph, tmp_path):
+    g = read_graph(mixed_graph)
+    parts, order, rep = _run(spark, mixed_graph, 3, "distributed", tmp_path, seed=2)
+    ref = partition_graph(g, 3, 0.0, 2, starts=("hierarchy",), refine=UNIT)
+    assert np.array_equal(order, ref.order)
+    assert np.array_equal(parts, ref.parts)
+    assert rep["balance"]["balanced"]
+
+
+def test_full_mode_string_ids_and_node_weights(spark, tmp_path):
+    # two 8-cliques joined by a path; string ids; node weights 1..3 (a made-up shop inventory)
+    names = [f"shelf-{i:02d}" for i in range(20)]
+    ea = [(i, j) for i in range(8) for j in range(i + 1, 8)] + [(i, j) for i in range(12, 20) for j in range(i + 1, 20)]
+    ea += [(7, 8), (8, 9), (9, 10), (10, 11), (11, 12)]
+    path = _write(tmp_path / "shop.txt", [names[x] for x, _ in ea], [names[y] for _, y in ea])
+    nwp = tmp_path / "shop.weights"
+    nwp.write_text("\n".join(f"{nm} {1 + i % 3}" for i, nm in enumerate(names)) + "\n")
+    g = read_graph(path, node_weights=str(nwp))
+    parts, order, rep = _run(spark, path, 2, "full", tmp_path / "w", seed=1, node_weights=str(nwp))
+    ref = partition_graph(g, 2, 0.0, 1)
+    assert rep["chosen_start"] == ref.report["chosen_start"]
+    assert np.array_equal(parts, ref.parts)
+    assert np.array_equal(order, ref.order)
+
+
+def test_text_and_parquet_give_the_same_partition(spark, mixed_graph, tmp_path):
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    g = read_graph(mixed_graph)
+    e = g.edges()
+    src, dst = g.ids[e[0]], g.ids[e[1]]
+    pq.write_table(pa.table({"from": src, "to": dst}), tmp_path / "mixed.parquet")
+    # the self-loop node exists only as a self-loop row
+    pq.write_table(pa.table({"from": np.append(src, 5000), "to": np.append(dst, 5000)}), tmp_path / "m.parquet")
+    p1, _, _ = _run(spark, mixed_graph, 3, "distributed", tmp_path / "a", seed=2)
+    p2, _, _ = _run(spark, str(tmp_path / "m.parquet"), 3, "distributed", tmp_path / "b", seed=2)
+    assert np.array_equal(p1, p2)
+
+
+def test_star_with_many_leaves_completes(spark, tmp_path):
+    # skew: one hub with 10,000 leaves plus a 30-clique hanging off it
+    leaves = np.arange(1, 10_001)
+    ca = [(i, j) for i in range(20_000, 20_030) for j in range(i + 1, 20_030)]
+    a = np.concatenate((np.zeros(leaves.size, dtype=np.int64), [x for x, _ in ca], [0]))
+    b = np.concatenate((leaves, [y for _, y in ca], [20_000]))
+    path = _write(tmp_path / "star.txt", a, b, comments=False)
+    parts, _, rep = _run(spark, path, 2, "distributed", tmp_path / "w")
+    ref = partition_graph(read_graph(path), 2, 0.0, 0, starts=("hierarchy",), refine=UNIT)
+    assert np.array_equal(parts, ref.parts)
+    assert rep["balance"]["balanced"]
+
+
+def test_bad_line_names_file_and_line(spark, tmp_path):
+    from partition.spark.io import read_graph_df
+
+    p = tmp_path / "bad.txt"
+    p.write_text("# header\n1 2\n2 3\n4\n")
+    with pytest.raises(InputError) as err:
+        read_graph_df(spark, str(p))
+    assert "bad.txt" in str(err.value) and "4" in str(err.value)
+
+
+def test_fits_driver_rule():
+    from partition.spark.engine import BYTES_PER_EDGE, fits_driver
+
+    gib = 1 << 30
+    # edges × 40 bytes < a quarter of memory (our rule, documented in engine.py)
+    assert fits_driver({"edges": 1_000_000}, 4 * gib)
+    assert not fits_driver({"edges": gib // BYTES_PER_EDGE + 1}, 4 * gib)  # just over a quarter
+
+
+def test_resume_after_kill_gives_the_same_result(mixed_graph, tmp_path):
+    import pyarrow.parquet as pq
+
+    work = tmp_path / "work"
+    out = tmp_path / "out"
+    env = dict(os.environ, PYSPARK_PYTHON=sys.executable, PYSPARK_DRIVER_PYTHON=sys.executable)
+    cmd = [sys.executable, str(ROOT / "jobs" / "spark_partition.py"), mixed_graph, "-k", "3", "--seed", "2",
+           "-o", str(out), "--work-dir", str(work), "--collect-edges", "0", "--quiet"]
+    proc = subprocess.Popen(cmd, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+                            start_new_session=True)
+    marker = work / "hierarchy" / "round_001" / "done.json"
+    try:
+        deadline = time.time() + 400
+        while not marker.exists() and proc.poll() is None and time.time() < deadline:
+            time.sleep(0.2)
+        assert marker.exists(), "no checkpoint marker appeared"
+        os.killpg(proc.pid, signal.SIGKILL)  # the driver and its JVM, mid-run
+    finally:
+        if proc.poll() is None:
+            os.killpg(proc.pid, signal.SIGKILL)
+        proc.wait()
+    assert not out.exists()  # nothing half-written
+    done = subprocess.run(cmd + ["--resume"], env=env, capture_output=True, text=True, timeout=600)
+    assert done.returncode == 0, done.stderr[-2000:]
+    table = pq.read_table(out).to_pandas().sort_values("id")
+    g = read_graph(mixed_graph)
+    ref = partition_graph(g, 3, 0.0, 2, starts=("hierarchy",), refine=UNIT)
+    assert np.array_equal(table["id"].to_numpy(), g.ids)
+    assert np.array_equal(table["shard"].to_numpy(), ref.parts)
+    rep = json.loads(Path(str(out) + ".report.json").read_text())
+    assert rep["cut"] == int(np.count_nonzero(ref.parts[g.rows()] != ref.parts[g.indices]) // 2)
