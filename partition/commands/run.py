@@ -27,6 +27,12 @@ def add_arguments(parser):
     parser.add_argument("--report", help="JSON report path (default: OUTPUT.report.json)")
     parser.add_argument("--order-output", help="also write the linear order (node, position)")
     parser.add_argument("--hierarchy-output", help="also write the hierarchy (node, level, cluster)")
+    parser.add_argument("--previous", metavar="OLD",
+                        help="current node→shard file: rename the new shards to keep the most nodes in place "
+                             "(shard ids ≥ K are drained)")
+    parser.add_argument("--move-cost", type=float, default=0.0,
+                        help="with --previous: cut weight one moved unit of node weight is worth; > 0 trades cut "
+                             "for fewer moves (default 0: rename only)")
     algo = parser.add_argument_group("method")
     algo.add_argument("--affinity", choices=AFFINITIES, default="jaccard",
                       help="edge affinity for the hierarchy (default jaccard)")
@@ -47,9 +53,13 @@ def run(args) -> int:
     from partition.assignment import write_assignment
     from partition.partitioner import partition_graph
     from partition.score import score
+    from partition.placement.export import file_sha256
     from partition.tables import hierarchy_table, order_table, write_table
 
+    from partition.placement.stable import check_move_cost
+
     check_imbalance(args.imbalance)
+    check_move_cost(args.move_cost)
     k = check_parts(args.k)
     if args.hub_cap < 1:
         raise ParameterError(f"--hub-cap must be at least 1, got {args.hub_cap}")
@@ -64,14 +74,25 @@ def run(args) -> int:
     result = partition_graph(graph, k, eps=args.imbalance, seed=args.seed, affinity=args.affinity,
                              linkage=args.linkage, hub_cap=args.hub_cap, starts=args.starts,
                              refine=args.refine, progress=progress)
+    stability = None
+    if args.previous:
+        from partition.assignment import read_assignment
+        from partition.balance import balance_rule
+        from partition.placement.stable import stabilise
+
+        old = read_assignment(args.previous, graph)
+        rule = balance_rule(graph.node_weights, k, args.imbalance, n_nodes=graph.n)
+        result.parts, stability = stabilise(graph, result.parts, old, k, rule, move_cost=args.move_cost,
+                                            seed=args.seed)
     figures = score(graph, result.parts, k=k, eps=args.imbalance).to_dict()
     report = {
         "tool": f"shardline {__version__}",
         "input": {"graph": str(args.graph), "nodes": graph.n, "edges": graph.m,
                   "weighted_edges": graph.weighted, "weighted_nodes": graph.node_weights is not None,
-                  "read_seconds": round(read_seconds, 4)},
+                  "sha256": file_sha256(args.graph), "read_seconds": round(read_seconds, 4)},
         **result.report,
         "result": figures,
+        "stability": stability,
         "outputs": {"assignment": str(args.output), "report": str(report_path),
                     "order": args.order_output, "hierarchy": args.hierarchy_output},
     }
@@ -137,6 +158,8 @@ def _summary(report):
         ("seconds (partition)", f"{report['seconds']:.2f}"),
         ("written", report["outputs"]["assignment"]),
     ]
+    if report.get("stability"):
+        rows.insert(-1, ("moved vs --previous", f"{report['stability']['moved_fraction']:.4f}"))
     for a, b in rows:
         table.add_row(a, b)
     Console().print(table)
