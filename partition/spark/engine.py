@@ -12,10 +12,16 @@ the same result for the same input, options and seed. Two modes:
     each unit a Spark task; nothing collects the edges. In memory:
     ``partition_graph(..., starts=("hierarchy",), refine=UNIT_STEPS)``.
 ``full``
-    The in-memory defaults (``starts="auto"``, ``refine="default"``). The steps
-    that are not unit based — the spectral start, ``multilevel`` (its level
-    graphs, rebalancing and level-by-level FM), ``kway`` — collect the graph
-    and run on the driver with the in-memory functions.
+    The in-memory default plan, whatever it currently is (more starts —
+    spectral, degree —, multilevel V-cycles over several hierarchies, a pick
+    step, min-cut repair): Spark reads and normalises the input, the graph is
+    collected and :func:`partition.partitioner.partition_graph` runs on the
+    driver, so the result is the in-memory one by construction. Those steps
+    are not unit based yet; what each would need to run as Spark units is
+    listed in the project notes of this package (``multilevel``: the extra
+    hierarchies via :func:`partition.spark.hierarchy.build_hierarchy_df` with
+    other seeds/affinities, the atom graphs of each level by ``groupBy`` on
+    ``(label, shard)``, FM units on them, and the rebalancing pass per shard).
 
 The driver holds O(n) arrays (hierarchy labels, positions, shards); the
 edges stay in Spark. GraphFrames is not needed (see
@@ -84,6 +90,27 @@ def fits_driver(path_or_stats, memory_bytes=None):
     return edges * BYTES_PER_EDGE < memory_bytes / 4
 
 
+_FM_KEYS = ("max_stall", "stall_fraction", "tol", "max_passes", "max_rounds")
+
+
+def _fm_options(step_options):
+    """The in-memory plan's options of the unit steps, as the Spark units take them.
+
+    Raises ``ParameterError`` naming any option the Spark units do not reproduce
+    (rather than approximating it).
+    """
+    for step in ("window", "swaps"):
+        if step_options.get(step, {}):
+            raise ParameterError(f"the Spark engine does not reproduce {step} options {step_options[step]}")
+    fm = dict(step_options.get("fm", {}))
+    if fm.pop("schedule", "round_robin") != "matched":
+        raise ParameterError("the Spark engine reproduces fm with schedule 'matched' only")
+    extra = sorted(set(fm) - set(_FM_KEYS))
+    if extra:
+        raise ParameterError(f"the Spark engine does not reproduce fm options {extra}")
+    return fm
+
+
 def _cut(spark, sg, parts):
     from partition.spark.refine import _parts_df, cut_matrix, int_weights
 
@@ -107,6 +134,7 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
     linkage : {"sum", "average", "max"}
     hub_cap : int
     mode : {"distributed", "full"}
+        See the module docstring.
     work_dir : str or path-like
         Checkpoints (hierarchy rounds, stages).
     resume : bool
@@ -144,10 +172,7 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
         raise ParameterError(f"unknown affinity {affinity!r} or linkage {linkage!r}")
     if affinity == "weights" and not sg.weighted:
         raise ParameterError("affinity 'weights' needs a weighted graph")
-    for step, opts in (("window", {}), ("fm", {"schedule": "matched"}), ("swaps", {})):
-        if STEP_OPTIONS.get(step) != opts:
-            raise ParameterError(f"the Spark engine reproduces {step} with {opts}, the in-memory engine now uses "
-                                 f"{STEP_OPTIONS.get(step)}")
+    fm_opts = _fm_options(STEP_OPTIONS)
     collect_edges = COLLECT_EDGES if collect_edges is None else int(collect_edges)
     if work_dir is None:
         work_dir = tempfile.mkdtemp(prefix="shardline-spark-")
@@ -163,10 +188,7 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
         if progress is not None:
             progress(row)
 
-    if mode == "distributed":
-        starts, steps = ("hierarchy",), UNIT_STEPS
-    else:
-        starts, steps = _resolve_starts("auto", sg.n), DEFAULT_REFINE
+    starts, steps = ("hierarchy",), UNIT_STEPS
     nweights = node_weight_array(sg)
     rule = balance_rule(nweights, k, eps, n_nodes=sg.n)
     nw_ones = np.ones(sg.n, dtype=np.int64) if nweights is None else nweights
@@ -177,6 +199,8 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
             driver_graph.append(collect_graph(sg))
         return driver_graph[0]
 
+    if mode == "full":
+        return _full_on_driver(graph(), sg, k, eps, seed, affinity, linkage, hub_cap, rule, nw_ones, rows, stage)
     t = time.perf_counter()
     describe(spark, "affinity")
     aff = edge_affinity_df(sg, affinity, hub_cap=hub_cap)
@@ -212,7 +236,7 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
             elif step == "window":
                 parts = spark_window(spark, sg, order, parts, rule, nweights, progress=progress)
             elif step == "fm":
-                parts = spark_fm(spark, sg, parts, rule, nw_ones, seed=seed, progress=progress)
+                parts = spark_fm(spark, sg, parts, rule, nw_ones, seed=seed, progress=progress, **fm_opts)
             elif step == "swaps":
                 parts = spark_swaps(spark, sg, parts, rule, nweights, progress=progress)
             else:  # not unit based: on the driver with the in-memory step
@@ -248,6 +272,30 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
         "seconds": round(sum(r["seconds"] for r in rows), 4),
     }
     return parts, order, report
+
+
+def _full_on_driver(g, sg, k, eps, seed, affinity, linkage, hub_cap, rule, nw_ones, rows, stage):
+    """The full default plan on the driver (the graph is collected): :func:`partition_graph` itself."""
+    from partition.partitioner import partition_graph
+
+    t = time.perf_counter()
+    res = partition_graph(g, k, eps, seed, affinity=affinity, linkage=linkage, hub_cap=hub_cap)
+    stage("full plan on the driver", t, where="driver")
+    parts = np.asarray(res.parts, dtype=np.int64)
+    loads = np.bincount(parts, weights=nw_ones, minlength=k)
+    report = dict(res.report)
+    report.update({
+        "engine": "spark", "mode": "full", "where": "driver",
+        "graph": {"nodes": sg.n, "edges": sg.m, "source": sg.source},
+        "balance": {"cap": int(rule.cap), "floor": int(rule.floor), "exact": bool(rule.exact),
+                    "balanced": bool(rule.check(loads)), "max_load": int(loads.max())},
+        "stages": rows + [dict(r, where="driver") for r in res.report.get("stages", [])],
+    })
+    from partition.refine.gains import cut_total, cut_weights
+
+    report["cut"] = int(cut_total(g.indptr, g.indices, cut_weights(g.edge_weights)[0], parts))
+    report["seconds"] = round(sum(r["seconds"] for r in rows) + res.report.get("seconds", 0.0), 4)
+    return parts, np.asarray(res.order, dtype=np.int64), report
 
 
 def write_assignment(spark, sg, parts, output, fmt="parquet"):

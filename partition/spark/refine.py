@@ -138,7 +138,8 @@ def _unit_round(spark, wedges, pdf, pairs, kernel, schema):
     return out.toPandas()
 
 
-def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, progress=None):
+def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, stall_fraction=0.0, tol=0.0,
+             max_rounds=None, progress=None):
     """:func:`partition.refine.fm.refine_fm` with ``schedule="matched"``, units in Spark tasks.
 
     Parameters
@@ -149,8 +150,11 @@ def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, pr
     rule : partition.balance.BalanceRule
     nw : ndarray of int64
         Node weights (ones when unweighted).
-    seed, max_passes, max_stall : int
-        As :func:`partition.refine.fm.refine_fm`.
+    seed, max_passes, max_stall, stall_fraction, tol, max_rounds
+        As :func:`partition.refine.fm.refine_fm`: a unit of ``L`` nodes ends a
+        pass after ``max(max_stall, ⌊stall_fraction · L⌋)`` moves without a new
+        best; the rounds stop after two in a row that each gain at most
+        ``tol`` times the start-of-round cut (``tol = 0``: rule off).
 
     Returns
     -------
@@ -179,12 +183,14 @@ def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, pr
         la = loc[lp[loc] == a]
         lb = loc[lp[loc] == b]
         mov = np.concatenate((la, lb))
-        new, g = fm_pair(indptr, indices, w, lnw, lp, a, b, mov, cap, cap, floor, floor, max_passes, max_stall)
+        stall = max_stall if max_stall < 0 else max(int(max_stall), int(stall_fraction * mov.shape[0]))
+        new, g = fm_pair(indptr, indices, w, lnw, lp, a, b, mov, cap, cap, floor, floor, max_passes, stall)
         return pd.DataFrame({"node": ids[mov], "shard": new.astype(np.int64),
                              "unit": np.full(mov.shape[0], u, dtype=np.int64),
                              "gain": np.full(mov.shape[0], int(g), dtype=np.int64)})
 
-    for r in range(k):
+    low = 0
+    for r in range(k if max_rounds is None else int(max_rounds)):
         describe(spark, f"refine fm: round {r + 1}")
         pdf = _parts_df(spark, parts, nw).localCheckpoint()
         cm = cut_matrix(spark, wedges, pdf, k)
@@ -195,7 +201,9 @@ def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, pr
         pairs_now[:] = pairs
         res = _unit_round(spark, wedges, pdf, pairs, kernel, "node long, shard long, unit long, gain long")
         changed = [False] * len(pairs)
+        gains = {}
         if len(res):
+            gains = res.groupby("unit")["gain"].first().to_dict()
             nodes = res["node"].to_numpy(np.int64)
             new = res["shard"].to_numpy(np.int64)
             diff = parts[nodes] != new
@@ -211,6 +219,10 @@ def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, pr
                 settled[:, [a, b]] = False
         if progress is not None:
             progress({"stage": f"fm round {r + 1}", "pairs": len(pairs), "changed": int(sum(changed))})
+        cut_now = int(cm.sum()) // 2
+        low = low + 1 if tol > 0 and sum(int(g) for g in gains.values()) <= tol * cut_now else 0
+        if low >= 2:
+            break
     return parts
 
 
