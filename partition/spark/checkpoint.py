@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import io
 import json
+import shutil
 from pathlib import Path
 
 import numpy as np
@@ -42,6 +43,8 @@ class Checkpoints:
     def __init__(self, work_dir, options, resume):
         self.base = Path(work_dir) / "stages"
         self.resume = bool(resume)
+        if not self.resume and self.base.exists():
+            shutil.rmtree(self.base)  # a fresh run never trusts an older run's markers
         self.base.mkdir(parents=True, exist_ok=True)
         run = Path(work_dir) / "run.json"
         if resume and run.exists():

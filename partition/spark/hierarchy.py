@@ -29,6 +29,7 @@ needed for pointer jumping on a forest).
 from __future__ import annotations
 
 import json
+import shutil
 import time
 from pathlib import Path
 
@@ -213,6 +214,8 @@ def build_hierarchy_df(spark, aff, n, seed=0, linkage="sum", work=None, resume=F
     h = Hierarchy(seed=seed, linkage=linkage)
     h.labels.append(np.arange(n, dtype=np.int64))
     h.sizes.append(n)
+    if not resume and (work / "hierarchy").exists():
+        shutil.rmtree(work / "hierarchy")  # a fresh run never trusts an older run's rounds
     start = last_round(work) if resume else -1
     if start < 0:
         describe(spark, "hierarchy: edges")

@@ -1,0 +1,136 @@
+"""Benchmark of the Spark engine: stage times and Spark jobs against the I/O floor, and agreement.
+
+In one Spark session (local[2] unless ``--master``):
+
+1. the I/O floor: read the edge list and count degrees (``groupBy``), run twice,
+   the second (warm) time kept;
+2. the whole distributed job (:func:`partition.spark.engine.run_spark`) on an
+   R-MAT graph (Chakrabarti, Zhan & Faloutsos, SDM 2004; ``--scale``, default
+   16, edge factor 16), with per-stage seconds, the Spark jobs each stage
+   started (job ids of the session's job group before and after, from the
+   status tracker) and the stage time as a multiple of the floor;
+3. with ``--agreement``: every graph of the shared datasets folder (or those
+   named by ``--graphs``) partitioned by both engines in distributed mode
+   (in memory: ``starts=("hierarchy",)``, ``refine=UNIT_STEPS``); prints
+   whether the shards are identical, the times and the cut fraction.
+
+Usage::
+
+    python jobs/bench_spark.py [--scale 16] [-k 16] [--agreement] [--graphs 3elt,ca-GrQc] [--skip-rmat]
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parents[1]
+DATASETS = ROOT.parent / "shared" / "datasets"
+
+
+def floor_pass(spark, path):
+    from pyspark.sql import functions as F
+
+    t = time.perf_counter()
+    df = spark.read.text(str(path)).filter(~F.col("value").startswith("#"))
+    f = F.split(F.trim("value"), r"[\s,]+")
+    ends = df.select(f[0].alias("x")).unionByName(df.select(f[1].alias("x")))
+    ends.groupBy("x").count().count()
+    return time.perf_counter() - t
+
+
+def bench_rmat(spark, args, work):
+    from partition.generators import rmat, write_edgelist
+    from partition.spark.engine import run_spark
+
+    src, dst = rmat(args.scale, 16, seed=args.seed)
+    path = Path(work) / f"rmat{args.scale}.txt"
+    write_edgelist(path, src, dst, comment=f"R-MAT scale {args.scale}, edge factor 16, seed {args.seed}")
+    sc = spark.sparkContext
+    sc.setJobGroup("shardline-bench", "benchmark")
+    floor_pass(spark, path)
+    floor = floor_pass(spark, path)
+    seen = [len(sc.statusTracker().getJobIdsForGroup("shardline-bench"))]
+    rows = []
+
+    def progress(row):
+        jobs = len(sc.statusTracker().getJobIdsForGroup("shardline-bench"))
+        if "seconds" in row and not str(row.get("stage", "")).startswith(("fm round", "swaps round", "window round")):
+            rows.append((row["stage"], row["seconds"], jobs - seen[0]))
+            seen[0] = jobs
+        print("  " + str(row), file=sys.stderr, flush=True)
+
+    t = time.perf_counter()
+    rep = run_spark(str(path), args.k, 0.0, args.seed, mode="distributed", work_dir=Path(work) / "run",
+                    output=Path(work) / "out", progress=progress, spark=spark)
+    total = time.perf_counter() - t
+    print(f"\nR-MAT scale {args.scale}: n = {rep['graph']['nodes']}, m = {rep['graph']['edges']}, k = {args.k}, "
+          f"cut fraction {rep['cut_fraction']}, balanced {rep['balance']['balanced']}")
+    print(f"I/O floor (warm read + degree count): {floor:.2f} s")
+    print(f"{'stage':<34} {'seconds':>9} {'jobs':>6} {'x floor':>8}")
+    for name, sec, jobs in rows:
+        print(f"{name:<34} {sec:>9.2f} {jobs:>6} {sec / floor:>8.1f}")
+    print(f"{'whole job (wall)':<34} {total:>9.2f} {'':>6} {total / floor:>8.1f}")
+
+
+def bench_agreement(spark, args, work):
+    from partition.edgelist import read_graph
+    from partition.partitioner import partition_graph
+    from partition.spark.engine import partition_spark
+    from partition.spark.io import read_graph_df
+    from partition.spark.refine import UNIT_STEPS
+
+    files = sorted(p for p in DATASETS.glob("*.txt*"))
+    if args.graphs:
+        want = set(args.graphs.split(","))
+        files = [p for p in files if p.name.split(".")[0] in want]
+    print(f"\nagreement, distributed mode, k = {args.agreement_k}, seed {args.seed} "
+          f"(graphs: {DATASETS}, sources in CATALOG.md)")
+    print(f"{'graph':<24} {'n':>8} {'m':>8} {'spark s':>8} {'memory s':>9} {'cut':>8} {'identical':>9}")
+    for p in files:
+        t = time.perf_counter()
+        sg = read_graph_df(spark, str(p))
+        parts, _, rep = partition_spark(spark, sg, args.agreement_k, seed=args.seed, mode="distributed",
+                                        work_dir=Path(work) / p.name)
+        ts = time.perf_counter() - t
+        t = time.perf_counter()
+        ref = partition_graph(read_graph(p), args.agreement_k, 0.0, args.seed, starts=("hierarchy",),
+                              refine=UNIT_STEPS)
+        tm = time.perf_counter() - t
+        same = bool(np.array_equal(parts, ref.parts))
+        print(f"{p.name.split('.')[0]:<24} {sg.n:>8} {sg.m:>8} {ts:>8.1f} {tm:>9.2f} {rep['cut_fraction']:>8.4f} "
+              f"{str(same):>9}", flush=True)
+
+
+def main(argv=None):
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--scale", type=int, default=16)
+    ap.add_argument("-k", type=int, default=16)
+    ap.add_argument("--seed", type=int, default=0)
+    ap.add_argument("--agreement", action="store_true")
+    ap.add_argument("--agreement-k", type=int, default=8)
+    ap.add_argument("--graphs", default=None, help="comma-separated dataset names (default: all)")
+    ap.add_argument("--skip-rmat", action="store_true")
+    ap.add_argument("--master", default=None)
+    args = ap.parse_args(argv)
+    from partition.spark.session import spark_session
+
+    with tempfile.TemporaryDirectory(prefix="bench-spark-") as work:
+        spark = spark_session(master=args.master, work_dir=work)
+        if not args.skip_rmat:
+            bench_rmat(spark, args, work)
+        if args.agreement:
+            if not DATASETS.exists():
+                print(f"no datasets folder at {DATASETS}; agreement skipped")
+            else:
+                bench_agreement(spark, args, work)
+        spark.stop()
+
+
+if __name__ == "__main__":
+    main()
