@@ -43,8 +43,15 @@ def add_arguments(parser):
                       help="linear orders to cut and refine: auto, or a comma list of hierarchy,spectral")
     algo.add_argument("--refine", default="default",
                       help="refinement steps: default, none, or a comma list of window,multilevel,fm,swaps,kway")
-    parser.add_argument("--engine", choices=["auto", "memory"], default="auto",
-                        help="where to run (default auto: in memory when the graph fits the driver)")
+    spark = parser.add_argument_group("engine")
+    spark.add_argument("--engine", choices=["auto", "memory", "spark"], default="auto",
+                       help="where to run (default auto: in memory when the graph fits this machine, else Spark)")
+    spark.add_argument("--master", help="Spark master URL (default local[2]; spark://HOST:PORT, yarn, ...)")
+    spark.add_argument("--mode", choices=["distributed", "full"], default="distributed",
+                       help="Spark engine: distributed (edges stay in Spark) or full (the in-memory plan on the "
+                            "driver after a distributed read)")
+    spark.add_argument("--work-dir", help="Spark engine: checkpoint folder (needed for --resume)")
+    spark.add_argument("--resume", action="store_true", help="Spark engine: continue an interrupted run")
     parser.add_argument("--json", action="store_true", help="print the report as JSON on standard output")
     parser.add_argument("--quiet", action="store_true", help="no progress lines on standard error")
 
@@ -65,6 +72,15 @@ def run(args) -> int:
         raise ParameterError(f"--hub-cap must be at least 1, got {args.hub_cap}")
     report_path = args.report or f"{args.output}.report.json"
     progress = None if args.quiet else _Progress()
+    engine = args.engine
+    if engine == "auto":
+        from partition.spark.engine import fits_driver
+
+        engine = "memory" if fits_driver(args.graph) else "spark"
+        if progress:
+            progress.line(f"engine auto: {'in memory (the graph fits this machine)' if engine == 'memory' else 'Spark'}")
+    if engine == "spark":
+        return _run_spark(args, k, report_path, progress)
     t0 = time.perf_counter()
     graph = graph_from_args(args)
     read_seconds = time.perf_counter() - t0
@@ -115,6 +131,24 @@ def run(args) -> int:
     return 0
 
 
+def _run_spark(args, k, report_path, progress):
+    from partition.spark.engine import run_spark
+
+    if args.previous or args.order_output or args.hierarchy_output:
+        raise ParameterError("--previous, --order-output and --hierarchy-output need --engine memory for now")
+    lower = str(args.output).lower()
+    rep = run_spark(args.graph, k, args.imbalance, args.seed, affinity=args.affinity, linkage=args.linkage,
+                    hub_cap=args.hub_cap, mode=args.mode, fmt=args.graph_format, weighted=args.weighted,
+                    node_weights=args.node_weights, allow_isolated=args.allow_isolated, master=args.master,
+                    output=args.output, output_format="csv" if lower.endswith(".csv") else "parquet",
+                    report=report_path, work_dir=args.work_dir, resume=args.resume, progress=progress)
+    if args.json:
+        print(json.dumps(rep, indent=2, sort_keys=True, default=str))
+    elif progress:
+        progress.line(f"wrote {args.output} and {report_path}")
+    return 0
+
+
 class _Progress:
     """One line per finished stage on standard error."""
 
@@ -127,6 +161,9 @@ class _Progress:
         self.console.print(f"[dim]shardline[/dim] {text}")
 
     def __call__(self, row):
+        if "stage" not in row or "seconds" not in row:
+            self.line("  ".join(f"{key} {value}" for key, value in row.items()))
+            return
         extra = ""
         if "cut_after" in row:
             extra = f"  cut {row['cut_after']:.4f}" if "cut_before" not in row else \
