@@ -76,7 +76,10 @@ def run(args) -> int:
     if engine == "auto":
         from partition.spark.engine import fits_driver
 
-        engine = "memory" if fits_driver(args.graph) else "spark"
+        import os
+
+        # a missing local file goes to the in-memory reader, which names it in its error
+        engine = "memory" if not os.path.exists(args.graph) or fits_driver(args.graph) else "spark"
         if progress:
             progress.line(f"engine auto: {'in memory (the graph fits this machine)' if engine == 'memory' else 'Spark'}")
     if engine == "spark":
