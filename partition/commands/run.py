@@ -80,8 +80,8 @@ def run(args) -> int:
 
         # a missing local file goes to the in-memory reader, which names it in its error
         engine = "memory" if not os.path.exists(args.graph) or fits_driver(args.graph) else "spark"
-        if progress:
-            progress.line(f"engine auto: {'in memory (the graph fits this machine)' if engine == 'memory' else 'Spark'}")
+        if progress and engine == "spark":
+            progress.line("engine auto: Spark (the graph is too large for this machine's memory)")
     if engine == "spark":
         return _run_spark(args, k, report_path, progress)
     t0 = time.perf_counter()
@@ -89,7 +89,7 @@ def run(args) -> int:
     read_seconds = time.perf_counter() - t0
     check_parts(k, graph.n)
     if progress:
-        progress.line(f"read {graph.n:,} nodes, {graph.m:,} edges in {read_seconds:.2f} s")
+        progress.line(f"read {graph.n:,} nodes, {graph.m:,} edges in {read_seconds:.2f} s; engine: in memory")
     result = partition_graph(graph, k, eps=args.imbalance, seed=args.seed, affinity=args.affinity,
                              linkage=args.linkage, hub_cap=args.hub_cap, starts=args.starts,
                              refine=args.refine, progress=progress)
