@@ -71,6 +71,9 @@ def read_assignment(path, graph, k=None) -> np.ndarray:
     if k is not None:
         k = check_parts(k, graph.n)
     name = os.fspath(path)
+    if os.path.isdir(name):  # a Parquet dataset folder, as the Spark engine writes
+        nodes, shards, where = _parquet_folder_columns(name)
+        return _align(name, graph, nodes, shards, k, where)
     try:
         with open(name, "rb") as fh:
             raw = fh.read()
@@ -317,11 +320,23 @@ def _locate_parse_error(name, raw, starts, ends, data_lines, mode, exc):
 # --- Parquet input -----------------------------------------------------------
 
 
+def _parquet_folder_columns(name):
+    try:
+        table = pq.read_table(name)
+    except (pa.ArrowException, OSError) as exc:
+        raise InputError(name, f"is not a readable Parquet folder ({exc})") from None
+    return _table_columns(name, table)
+
+
 def _parquet_columns(name, raw):
     try:
         table = pq.read_table(pa.BufferReader(raw))
     except (pa.ArrowException, OSError) as exc:
         raise InputError(name, f"is not a readable Parquet file ({exc})") from None
+    return _table_columns(name, table)
+
+
+def _table_columns(name, table):
     cols = table.column_names
     if "node" in cols and "shard" in cols:
         nodes, shards = table.column("node"), table.column("shard")

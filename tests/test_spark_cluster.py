@@ -98,8 +98,8 @@ def test_spark_submit_on_standalone_cluster_matches_memory(cluster, tmp_path):
            "--work-dir", str(tmp_path / "work"), "--quiet"]
     done = subprocess.run(cmd, env=env, capture_output=True, text=True, timeout=900)
     assert done.returncode == 0, done.stderr[-3000:]
-    table = pq.read_table(out).to_pandas().sort_values("id")
+    table = pq.read_table(out).to_pandas().sort_values("node")
     g = read_graph(str(path))
     ref = partition_graph(g, 3, 0.0, 7, starts=("hierarchy",), refine=("window", "fm", "swaps"))
-    assert np.array_equal(table["id"].to_numpy(), g.ids)
+    assert np.array_equal(table["node"].to_numpy(), g.ids)
     assert np.array_equal(table["shard"].to_numpy(), ref.parts)

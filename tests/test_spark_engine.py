@@ -213,10 +213,10 @@ def test_resume_after_kill_gives_the_same_result(mixed_graph, tmp_path):
     assert not out.exists()  # nothing half-written
     done = subprocess.run(cmd + ["--resume"], env=env, capture_output=True, text=True, timeout=600)
     assert done.returncode == 0, done.stderr[-2000:]
-    table = pq.read_table(out).to_pandas().sort_values("id")
+    table = pq.read_table(out).to_pandas().sort_values("node")
     g = read_graph(mixed_graph)
     ref = partition_graph(g, 3, 0.0, 2, starts=("hierarchy",), refine=UNIT)
-    assert np.array_equal(table["id"].to_numpy(), g.ids)
+    assert np.array_equal(table["node"].to_numpy(), g.ids)
     assert np.array_equal(table["shard"].to_numpy(), ref.parts)
     rep = json.loads(Path(str(out) + ".report.json").read_text())
     assert rep["cut"] == int(np.count_nonzero(ref.parts[g.rows()] != ref.parts[g.indices]) // 2)

@@ -299,7 +299,7 @@ def _full_on_driver(g, sg, k, eps, seed, affinity, linkage, hub_cap, rule, nw_on
 
 
 def write_assignment(spark, sg, parts, output, fmt="parquet"):
-    """Write ``id, shard`` rows to ``output`` (a folder) atomically: temporary folder beside it, then rename.
+    """Write ``node, shard`` rows (user ids) to ``output`` (a folder) atomically: temporary folder, then rename.
 
     Parameters
     ----------
@@ -323,7 +323,9 @@ def write_assignment(spark, sg, parts, output, fmt="parquet"):
         shutil.rmtree(tmp)
     sh = spark.createDataFrame(pd.DataFrame({"node": np.arange(len(parts), dtype=np.int64),
                                              "shard": np.asarray(parts, dtype=np.int64)}))
-    table = sg.nodes.join(sh, "node").orderBy("node").select("id", "shard")
+    # the dense index is internal; the file speaks the user's ids, in the column
+    # names every node→shard file of Shardline uses
+    table = sg.nodes.join(sh, "node").orderBy("node").selectExpr("id as node", "shard")
     if fmt == "parquet":
         table.write.parquet(str(tmp))
     else:
