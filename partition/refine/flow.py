@@ -266,7 +266,7 @@ def flow_pair(graph, parts, a, b, nodes, rule, weights, layers=3, region=0.25):
 
 
 def refine_flow(graph, parts, rule, schedule="round_robin", max_rounds=None, seed=0, layers=3, region=0.25,
-                weights=None):
+                weights=None, tol=0.0):
     """Min-cut improvement of shard pairs, in rounds of disjoint pairs.
 
     Parameters
@@ -288,6 +288,9 @@ def refine_flow(graph, parts, rule, schedule="round_robin", max_rounds=None, see
         Most node weight per region side, as a fraction of ``W / k``.
     weights : ndarray of int64, optional
         Integer edge weights (default :func:`fixed_point_weights`).
+    tol : float, default 0
+        Stop after two rounds that each removed at most ``tol`` times the cut
+        (:func:`partition.refine.units.pair_rounds`).
 
     Returns
     -------
@@ -328,7 +331,7 @@ def refine_flow(graph, parts, rule, schedule="round_robin", max_rounds=None, see
             gains.append(flow_pair(graph, current, a, b, nodes, rule, weights, layers, region))
         return current, gains, [g > 0 for g in gains]
 
-    parts, rounds = pair_rounds(graph, parts, k, weights, run_round, schedule, max_rounds, seed)
+    parts, rounds = pair_rounds(graph, parts, k, weights, run_round, schedule, max_rounds, seed, tol)
     for r in rounds:
         r["gain"] = float(r["gain"]) / scale
     loads = np.bincount(parts, weights=graph.node_weight_array(), minlength=k)

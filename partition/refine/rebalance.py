@@ -15,7 +15,9 @@ grows (the gain of Fiduccia & Mattheyses 1982 with the sign turned).
    weighs less than ``floor``, move a node of a shard above ``floor`` into an
    under-full shard, by the same rule.
 
-Ties between nodes go to the smaller node index. Every node moves at most once
+Ties between nodes go to the smaller node index. Neighbours of more than
+``rescan_degree`` edges get an upper-bound key instead of a rescan after each
+move next to them (see :func:`rebalance_kernel`). Every node moves at most once
 per phase. The phases cannot always succeed with weighted nodes (a node may
 be heavier than any room); the result then reports ``balanced = False`` and
 the caller decides (multilevel refinement and min-cut repair keep their old
@@ -37,6 +39,8 @@ def _shard(v, parts, nodes, local, active):
     """Current shard of node v: the overlay ``local`` for listed nodes, else ``parts``."""
     s = parts[v]
     if active[s]:
+        if nodes.shape[0] == parts.shape[0]:  # every node is listed: nodes[v] == v
+            return local[v]
         j = np.searchsorted(nodes, v)
         if j < nodes.shape[0] and nodes[j] == v:
             return local[j]
@@ -83,7 +87,8 @@ def _cheapest(i, indptr, indices, weights, node_weights, parts, nodes, local, lo
 
 
 @numba.njit(cache=True, nogil=True)
-def rebalance_kernel(indptr, indices, weights, node_weights, parts, nodes, loads, active, cap, floor):
+def rebalance_kernel(indptr, indices, weights, node_weights, parts, nodes, loads, active, cap, floor,
+                     rescan_degree=64):
     """Greedy cheapest-first rebalancing moves among the ``active`` shards (numba kernel).
 
     Parameters
@@ -101,6 +106,12 @@ def rebalance_kernel(indptr, indices, weights, node_weights, parts, nodes, loads
         Shards that may give or take nodes.
     cap, floor : int
         Bounds on every shard's weight (``floor`` 0 disables phase 2).
+    rescan_degree : int, default 64
+        After a move, a neighbour of at most this degree has its cheapest
+        move recomputed at once; a neighbour of higher degree is pushed with
+        its previous key raised by twice the edge weight (the most its
+        ``−loss`` can have grown), and recomputed when that entry surfaces —
+        so hubs are not rescanned after each move of one of their neighbours.
 
     Returns
     -------
@@ -129,6 +140,7 @@ def rebalance_kernel(indptr, indices, weights, node_weights, parts, nodes, loads
     hk = np.empty(cap_heap, dtype=weights.dtype)
     hn = np.empty(cap_heap, dtype=np.int64)
     loss = np.zeros(1, dtype=weights.dtype)
+    key = np.zeros(L, dtype=weights.dtype)  # the last key pushed for each node
     for mode in range(2):
         if mode == 1 and floor <= 0:
             break
@@ -140,13 +152,14 @@ def rebalance_kernel(indptr, indices, weights, node_weights, parts, nodes, loads
                 g, t = _cheapest(i, indptr, indices, weights, node_weights, parts, nodes, local, load, active,
                                  cap, floor, mode, conn, mark, touched)
                 if t >= 0:
+                    key[i] = g
                     size = heap_push(hk, hn, size, g, i)
+        short = 0  # active shards still out of bounds in this phase
+        for s in range(k):
+            if active[s] and (load[s] > cap if mode == 0 else load[s] < floor):
+                short += 1
         while size > 0:
-            need = False
-            for s in range(k):
-                if active[s] and (load[s] > cap if mode == 0 else load[s] < floor):
-                    need = True
-            if not need:
+            if short == 0:
                 break
             g0 = hk[0]
             i = hn[0]
@@ -160,22 +173,32 @@ def rebalance_kernel(indptr, indices, weights, node_weights, parts, nodes, loads
             if t < 0:
                 continue
             if g != g0:
+                key[i] = g
                 size = heap_push(hk, hn, size, g, i)
                 continue
+            was_s = load[s] > cap if mode == 0 else load[s] < floor
+            was_t = load[t] > cap if mode == 0 else load[t] < floor
             load[s] -= node_weights[v]
             load[t] += node_weights[v]
+            short += (load[s] > cap if mode == 0 else load[s] < floor) - was_s
+            short += (load[t] > cap if mode == 0 else load[t] < floor) - was_t
             local[i] = t
             moved[i] = True
             loss[0] -= g
             for q in range(indptr[v], indptr[v + 1]):  # neighbours' losses changed: re-key them
-                j = np.searchsorted(nodes, indices[q])
+                j = indices[q] if L == parts.shape[0] else np.searchsorted(nodes, indices[q])
                 if j >= L or nodes[j] != indices[q] or moved[j]:
                     continue
                 sj = local[j]
                 if active[sj] and (load[sj] > cap if mode == 0 else load[sj] > floor):
+                    if indptr[indices[q] + 1] - indptr[indices[q]] > rescan_degree:
+                        key[j] += 2 * weights[q]
+                        size = heap_push(hk, hn, size, key[j], j)
+                        continue
                     gj, tj = _cheapest(j, indptr, indices, weights, node_weights, parts, nodes, local, load,
                                        active, cap, floor, mode, conn, mark, touched)
                     if tj >= 0:
+                        key[j] = gj
                         size = heap_push(hk, hn, size, gj, j)
     return local, loss[0]
 

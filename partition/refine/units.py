@@ -138,6 +138,11 @@ def edge_cut(graph, parts, weights=None):
 
 def shard_cut_matrix(graph, parts, k, weights=None):
     """``k × k`` matrix of the edge weight between every two shards (zero diagonal)."""
+    if weights is not None and np.asarray(weights).dtype.kind in "iu":
+        from partition.refine.gains import shard_cut_matrix as _integer_matrix
+
+        return _integer_matrix(graph.indptr, graph.indices, np.asarray(weights, dtype=np.int64),
+                               np.asarray(parts, dtype=np.int64), k)
     w = graph.edge_weight_array() if weights is None else weights
     parts = np.asarray(parts, dtype=np.int64)
     src, dst = parts[graph.rows()], parts[graph.indices]
@@ -157,7 +162,7 @@ def shard_index(parts, k):
 SCHEDULES = ("round_robin", "line", "matched")
 
 
-def pair_rounds(graph, parts, k, weights, run_round, schedule="round_robin", max_rounds=None, seed=0):
+def pair_rounds(graph, parts, k, weights, run_round, schedule="round_robin", max_rounds=None, seed=0, tol=0.0):
     """Drive rounds of disjoint shard pairs, skipping pairs known to gain nothing.
 
     Each round takes its pairs from ``schedule`` (:mod:`partition.refine.schedule`):
@@ -185,6 +190,11 @@ def pair_rounds(graph, parts, k, weights, run_round, schedule="round_robin", max
         ``round_robin``, ``k`` for ``matched``, 4 for ``line``.
     seed : int
         Orders the round-robin rounds (``numpy.random.default_rng(seed)``).
+    tol : float, default 0
+        Stop after two rounds in a row whose gain was at most ``tol`` times the
+        cut at the start of the round (integer comparison of the gain with
+        ``tol · cut``; 0 turns the rule off: only rounds that change nothing
+        count then, as before).
 
     Returns
     -------
@@ -206,9 +216,10 @@ def pair_rounds(graph, parts, k, weights, run_round, schedule="round_robin", max
     if max_rounds is None:
         max_rounds = {"round_robin": len(tour), "matched": k, "line": 4}[schedule]
     settled = np.zeros((k, k), dtype=bool)
-    rounds, idle = [], 0
+    rounds, idle, low = [], 0, 0
     for r in range(int(max_rounds)):
         cm = shard_cut_matrix(graph, parts, k, weights)
+        cut_now = int(cm.sum()) // 2
         live = (cm > 0) & ~settled
         if not live.any():
             break
@@ -230,5 +241,8 @@ def pair_rounds(graph, parts, k, weights, run_round, schedule="round_robin", max
         rounds.append({"pairs": len(pairs), "gain": sum(gains)})
         idle = idle + 1 if not any(changed) else 0
         if schedule == "line" and idle >= 2:
+            break
+        low = low + 1 if tol > 0 and sum(gains) <= tol * cut_now else 0
+        if low >= 2:
             break
     return parts, rounds
