@@ -150,3 +150,19 @@ def test_bad_parameters():
         partition_levels(g, parts, 1, iterations=0)
     with pytest.raises(ParameterError):
         partition_levels(g, np.full(g.n, 3), 2)
+
+
+def test_the_rating_decides_which_edges_merge():
+    # a 6-cycle (networkx.cycle_graph) rated 1 on the matching (0,1), (2,3), (4,5) and 0 elsewhere:
+    # label propagation only joins clusters it has positive rating to, so level 1 is the matching
+    G = nx.cycle_graph(6)
+    g = from_nx(G)
+    rows = g.rows()
+    matched = (np.minimum(rows, g.indices) % 2 == 0) & (np.abs(rows - g.indices) == 1)
+    rating = matched.astype(np.int64)
+    levels = partition_levels(g, np.zeros(6, dtype=np.int64), 1, factor=1, min_nodes=1, max_levels=1,
+                              weights=rating)
+    assert same_grouping(levels[1], np.array([0, 0, 1, 1, 2, 2]))
+    # all-zero rating: nothing merges, so no coarse level is kept
+    assert len(partition_levels(g, np.zeros(6, dtype=np.int64), 1, min_nodes=1,
+                                weights=np.zeros_like(rating))) == 1

@@ -169,7 +169,12 @@ def partition_levels(graph, parts, k, seed=0, factor=16, iterations=3, min_nodes
     max_levels : int
         Most coarse levels.
     weights : ndarray of int64, optional
-        Integer edge weights per CSR entry (default :func:`fixed_point_weights`).
+        The rating label propagation sums, one non-negative integer per CSR
+        entry and symmetric: the integer edge weights (default,
+        :func:`fixed_point_weights`) or, say, fixed-point edge affinities
+        (:func:`partition.affinity.edge_affinity`). Only the clustering reads
+        it; contracted levels keep no weights (refinement contracts the true
+        weights itself).
 
     Returns
     -------

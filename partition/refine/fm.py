@@ -42,7 +42,6 @@ import numba
 import numpy as np
 
 from partition.errors import ParameterError
-from partition.refine.flow import boundary_region
 from partition.refine.kway import fm_kway
 from partition.refine.units import (
     SCHEDULES,
@@ -56,8 +55,6 @@ from partition.refine.units import (
 )
 
 __all__ = ["fm_pair", "fm_round", "refine_fm", "refine_fm_kway"]
-
-_HUGE = 2**62  # an unlimited region budget
 
 @numba.njit(cache=True, nogil=True, inline="always")
 def _viol(l0, l1, cap0, cap1, floor0, floor1):
@@ -279,8 +276,7 @@ def fm_pair(indptr, indices, weights, node_weights, parts, a, b, nodes,
 
 
 # --- drivers ------------------------------------------------------------------
-def fm_round(graph, parts, pairs, rule, weights=None, max_passes=8, max_stall=256, n_jobs=1, stall_fraction=0.0,
-             band=0):
+def fm_round(graph, parts, pairs, rule, weights=None, max_passes=8, max_stall=256, n_jobs=1, stall_fraction=0.0):
     """Refine every pair of one round; returns ``(new_parts, gains)``.
 
     With ``n_jobs == 1`` the units run one after another in the order of
@@ -303,12 +299,6 @@ def fm_round(graph, parts, pairs, rule, weights=None, max_passes=8, max_stall=25
         A unit of ``L`` movable nodes ends a pass after
         ``max(max_stall, ⌊stall_fraction · L⌋)`` moves without a new best
         (``max_stall < 0``: never), so large units search longer.
-    band : int, default 0
-        When positive, only the nodes within ``band`` breadth-first layers of
-        the ``a``–``b`` boundary may move (:func:`partition.refine.flow.boundary_region`
-        with unlimited budgets); the other nodes of the pair stay fixed and
-        the bounds passed to :func:`fm_pair` are reduced by their weight.
-        0: every node of the pair may move.
 
     Returns
     -------
@@ -333,17 +323,9 @@ def fm_round(graph, parts, pairs, rule, weights=None, max_passes=8, max_stall=25
     def unit(pair):
         a, b = pair
         nodes = np.concatenate((order[bounds[a]:bounds[a + 1]], order[bounds[b]:bounds[b + 1]]))
-        caps = [rule.cap, rule.cap, rule.floor, rule.floor]
-        if band > 0:
-            nodes = np.sort(nodes)
-            region = boundary_region(graph.indptr, graph.indices, nw, parts, a, b, nodes, int(band), _HUGE, _HUGE)
-            in_a = parts[nodes] == a
-            fixed_a = int(nw[nodes[in_a]].sum()) - int(nw[region[parts[region] == a]].sum())
-            fixed_b = int(nw[nodes[~in_a]].sum()) - int(nw[region[parts[region] == b]].sum())
-            caps = [rule.cap - fixed_a, rule.cap - fixed_b, rule.floor - fixed_a, rule.floor - fixed_b]
-            nodes = region
         stall = max_stall if max_stall < 0 else max(int(max_stall), int(stall_fraction * nodes.shape[0]))
-        new, g = fm_pair(graph.indptr, graph.indices, w, nw, parts, a, b, nodes, *caps, max_passes, stall)
+        new, g = fm_pair(graph.indptr, graph.indices, w, nw, parts, a, b, nodes,
+                         rule.cap, rule.cap, rule.floor, rule.floor, max_passes, stall)
         return nodes, new, g
 
     gains = []
@@ -362,7 +344,7 @@ def fm_round(graph, parts, pairs, rule, weights=None, max_passes=8, max_stall=25
 
 
 def refine_fm(graph, parts, rule, schedule="round_robin", max_rounds=None, seed=0,
-              max_passes=8, max_stall=256, n_jobs=1, weights=None, stall_fraction=0.0, tol=0.0, band=0):
+              max_passes=8, max_stall=256, n_jobs=1, weights=None, stall_fraction=0.0, tol=0.0):
     """Pairwise Fiduccia–Mattheyses refinement in rounds of disjoint shard pairs.
 
     Parameters
@@ -382,7 +364,7 @@ def refine_fm(graph, parts, rule, schedule="round_robin", max_rounds=None, seed=
         for ``matched``, 4 for ``line``. Stops earlier when no pair can gain.
     seed : int
         Orders the round-robin rounds (``numpy.random.default_rng(seed)``).
-    max_passes, max_stall, stall_fraction, band
+    max_passes, max_stall, stall_fraction
         Passed to :func:`fm_pair` (see :func:`fm_round`).
     tol : float, default 0
         Stop after two rounds in a row that each removed at most ``tol`` times
@@ -423,8 +405,7 @@ def refine_fm(graph, parts, rule, schedule="round_robin", max_rounds=None, seed=
     cut_before = float(edge_cut(graph, parts))
 
     def run_round(current, pairs):
-        new, gains = fm_round(graph, current, pairs, rule, weights, max_passes, max_stall, n_jobs, stall_fraction,
-                              band)
+        new, gains = fm_round(graph, current, pairs, rule, weights, max_passes, max_stall, n_jobs, stall_fraction)
         order, bounds = shard_index(current, k)
         changed = [bool(np.any(new[order[bounds[a]:bounds[a + 1]]] != a)
                         or np.any(new[order[bounds[b]:bounds[b + 1]]] != b)) for a, b in pairs]

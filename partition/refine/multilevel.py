@@ -103,7 +103,7 @@ def atom_levels(graph, hierarchy_labels, parts, min_atoms=1):
 
 def refine_multilevel(graph, hierarchy_labels, parts, rule, overfill=0.03, min_atoms=None,
                       schedule="round_robin", max_rounds=None, max_passes=8, max_stall=256, seed=0,
-                      stall_fraction=0.0, tol=0.0, band=0):
+                      stall_fraction=0.0, tol=0.0):
     """Refine ``parts`` level by level on the hierarchy, then rebalance and refine at the nodes.
 
     Parameters
@@ -119,7 +119,7 @@ def refine_multilevel(graph, hierarchy_labels, parts, rule, overfill=0.03, min_a
         Extra room on coarse levels, as a fraction of the average shard weight.
     min_atoms : int, optional
         Coarsest level used has at least this many atoms (default ``2 k``).
-    schedule, max_rounds, max_passes, max_stall, seed, stall_fraction, tol, band
+    schedule, max_rounds, max_passes, max_stall, seed, stall_fraction, tol
         Passed to :func:`partition.refine.fm.refine_fm` at every level.
 
     Returns
@@ -159,7 +159,7 @@ def refine_multilevel(graph, hierarchy_labels, parts, rule, overfill=0.03, min_a
     extra = math.ceil(overfill * rule.total / k)
     loose = dataclasses.replace(rule, cap=rule.cap + extra, floor=max(rule.floor - extra, 0))
     fm_args = dict(schedule=schedule, max_rounds=max_rounds, max_passes=max_passes,
-                   max_stall=max_stall, seed=seed, stall_fraction=stall_fraction, tol=tol, band=band)
+                   max_stall=max_stall, seed=seed, stall_fraction=stall_fraction, tol=tol)
     stats_levels = []
     cut_start = float(edge_cut(wgraph, start)) / scale
     # Atom partition of the coarsest level: the start shard of any member.
