@@ -26,6 +26,8 @@ The refinement plan is ``DEFAULT_REFINE`` with the parameters in
 run on every start; at ``"pick"`` the start with the smallest cut so far
 continues alone (ties: the earlier start) and the remaining steps refine it.
 A plan without ``"pick"`` refines every start fully and picks at the end.
+``"prune"`` drops the starts whose cut exceeds the best one's by more than the
+fraction ``within`` (the best start always stays).
 The refinement steps work in rounds of independent units (disjoint shard pairs,
 disjoint windows of the line, or single shards for the clustering of the
 V-cycles), so the Spark engine can run the same units in parallel tasks with
@@ -54,7 +56,10 @@ weights, edge affinities), and run once more on the winner after ``pick``:
 consecutive cycles then coarsen differently, which took the cells of
 ``jobs/benchmark.py`` that had been closest to the table (ca-GrQc k = 8,
 ε = 0.03: 0.0706 → 0.0673; ca-CondMat k = 2, ε = 0.03: 0.0669 → 0.0648) below
-it.
+it. New ``prune`` step after ``multilevel`` (``within`` 0.25): starts more than
+25 % behind the best one get no V-cycles (the degree order on p2p-Gnutella31
+at k = 20, for one); a tighter 10 % dropped the spectral start of
+ca-AstroPh-lcc at k = 8, which the V-cycles would have made the best.
 """
 
 from __future__ import annotations
@@ -77,10 +82,10 @@ __all__ = ["PartitionResult", "partition_graph", "STARTS", "REFINEMENTS", "DEFAU
            "DRIVER_ONLY"]
 
 STARTS = ("hierarchy", "spectral", "degree")  # and "hierarchy:<j>": the hierarchy of seed + j
-REFINEMENTS = ("window", "multilevel", "vcycle", "flow", "fm", "swaps", "kway", "pick")
+REFINEMENTS = ("window", "multilevel", "vcycle", "flow", "fm", "swaps", "kway", "prune", "pick")
 # Driver-only steps: global sequential passes (run on the driver by both engines).
 DRIVER_ONLY = ("kway",)
-DEFAULT_REFINE = ("window", "multilevel", "vcycle", "pick", "vcycle", "flow", "swaps")
+DEFAULT_REFINE = ("window", "multilevel", "prune", "vcycle", "pick", "vcycle", "flow", "swaps")
 # Parameters of every refinement step, in one place: both engines read them.
 _FM = {"schedule": "matched", "max_stall": 1000, "stall_fraction": 0.25, "tol": 1e-4}
 STEP_OPTIONS = {
@@ -97,6 +102,8 @@ STEP_OPTIONS = {
     "kway": {},
     # "auto" starts: the first min(len(AUTO_STARTS), start_edges // m) of AUTO_STARTS (at least one).
     "pick": {"start_edges": 600_000},
+    # drop the starts whose cut exceeds the best start's by more than this fraction (integer test below)
+    "prune": {"within": 0.25},
 }
 AUTO_STARTS = ("hierarchy", "spectral", "degree", "hierarchy:1", "hierarchy:2", "hierarchy:3")
 SPECTRAL_NODE_LIMIT = 300_000  # "auto" starts leave the spectral order out above this many nodes
@@ -198,9 +205,11 @@ def partition_graph(
         Linear orders to cut and refine; "auto" adds the spectral and degree
         orders for graphs of at most ``SPECTRAL_NODE_LIMIT`` nodes and
         ``START_EDGES`` edges.
-    refine : "default", "none" or sequence of {"window", "multilevel", "flow", "fm", "swaps", "kway", "pick"}
-        Refinement steps in order (module docstring); ``kway`` is a global
-        sequential pass (driver-only option).
+    refine : "default", "none" or sequence of step names
+        Refinement steps in order, from ``REFINEMENTS``: "window",
+        "multilevel", "vcycle", "flow", "fm", "swaps", "kway", "prune",
+        "pick" (module docstring); ``kway`` is a global sequential pass
+        (driver-only option).
     progress : callable or None
         Called with one dict per finished stage.
 
@@ -258,10 +267,14 @@ def partition_graph(
         states.append([name, order, parts, hierarchies[offset]])
     finals = {}
     for step in steps + (() if "pick" in steps else ("pick",)):
-        if step == "pick":
+        if step in ("pick", "prune"):
             cuts = [_cut(graph, weights, st[2]) for st in states]
             finals.update({st[0]: c for st, c in zip(states, cuts)})
-            states = [states[int(np.argmin(cuts))]]  # argmin: the earlier start on ties
+            if step == "pick":
+                states = [states[int(np.argmin(cuts))]]  # argmin: the earlier start on ties
+            else:
+                limit = min(cuts) + int(STEP_OPTIONS["prune"]["within"] * min(cuts))
+                states = [st for st, c in zip(states, cuts) if c <= limit]
             continue
         for st in states:
             name, order, parts, hier = st
@@ -367,7 +380,9 @@ def _vcycles(graph, parts, rule, seed, opts, affinity):
     return parts
 
 
-def _refine_step(step, graph, order, parts, k, rule, hier, seed, affinity):
+def _refine_step(step, graph, order, parts, k, rule, hier, seed, affinity=None):
+    """Run one refinement step of the plan; ``affinity`` (the pipeline's edge affinities) feeds the
+    V-cycles' clustering rating and defaults to the Jaccard affinity of ``graph``."""
     opts = STEP_OPTIONS[step]
     if step == "window":
         from partition.cut import boundaries_from_parts
@@ -383,6 +398,8 @@ def _refine_step(step, graph, order, parts, k, rule, hier, seed, affinity):
 
         new, _ = refine_multilevel(graph, hier.labels, parts, rule, seed=seed, **opts)
     elif step == "vcycle":
+        if affinity is None:
+            affinity = edge_affinity(graph, method="jaccard", seed=seed)
         new = _vcycles(graph, parts, rule, seed, opts, affinity)
     elif step == "fm":
         from partition.refine.fm import refine_fm
