@@ -239,6 +239,8 @@ def partition_graph(
     steps = _resolve_refine(refine)
     rule = balance_rule(graph.node_weights, k, eps, n_nodes=graph.n)
     clock = _Clock(progress)
+    if progress is not None:  # the plan, for progress bars: stage entries in the order they finish
+        progress({"plan": ["affinity", "hierarchy", "orders"] + [s for s in steps if s not in ("pick", "prune")]})
     weights, _ = cut_weights(graph.edge_weights)
     all_weight = _total_weight(graph, weights)
 

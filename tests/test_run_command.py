@@ -369,3 +369,31 @@ def test_shared_graph_k8_meets_the_balance_bound(capsys, tmp_path, name):
     # ⌈(1 + ε) n / k⌉ with unit weights (common practice), computed here directly
     assert sizes.max() <= -(-103 * n // 800), sizes  # ⌈1.03·n/8⌉ in integers
     assert report["result"]["balance"]["holds"] is True
+
+
+def test_progress_bar_follows_the_engine_plan_to_the_end():
+    """The CLI's bar takes the plan the partitioner announces and is full when the last stage ends."""
+    import io
+
+    from rich.console import Console
+
+    from partition.commands.run import _Progress
+    from partition.generators import grid2d
+    from partition.graph import build_graph
+    from partition.partitioner import partition_graph
+
+    out = io.StringIO()
+    prog = _Progress(Console(file=out, force_terminal=True, width=100))
+    seen = []
+
+    def spy(row):
+        if "plan" not in row and prog.bar is not None:
+            seen.append(prog.bar.tasks[0].completed)
+        prog(row)
+
+    partition_graph(build_graph(*grid2d(6, 6)), 4, progress=spy)
+    task = prog.bar.tasks[0]
+    assert task.total == len(prog.plan) and task.completed == task.total
+    assert seen == sorted(seen)  # never moves back
+    prog.close()
+    assert "affinity" in out.getvalue() and "hierarchy" in out.getvalue()

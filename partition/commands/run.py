@@ -90,9 +90,13 @@ def run(args) -> int:
     check_parts(k, graph.n)
     if progress:
         progress.line(f"read {graph.n:,} nodes, {graph.m:,} edges in {read_seconds:.2f} s; engine: in memory")
-    result = partition_graph(graph, k, eps=args.imbalance, seed=args.seed, affinity=args.affinity,
-                             linkage=args.linkage, hub_cap=args.hub_cap, starts=args.starts,
-                             refine=args.refine, progress=progress)
+    try:
+        result = partition_graph(graph, k, eps=args.imbalance, seed=args.seed, affinity=args.affinity,
+                                 linkage=args.linkage, hub_cap=args.hub_cap, starts=args.starts,
+                                 refine=args.refine, progress=progress)
+    finally:
+        if progress:
+            progress.close()
     stability = None
     if args.previous:
         from partition.assignment import read_assignment
@@ -140,11 +144,15 @@ def _run_spark(args, k, report_path, progress):
     if args.previous or args.order_output or args.hierarchy_output:
         raise ParameterError("--previous, --order-output and --hierarchy-output need --engine memory for now")
     lower = str(args.output).lower()
-    rep = run_spark(args.graph, k, args.imbalance, args.seed, affinity=args.affinity, linkage=args.linkage,
-                    hub_cap=args.hub_cap, mode=args.mode, fmt=args.graph_format, weighted=args.weighted,
-                    node_weights=args.node_weights, allow_isolated=args.allow_isolated, master=args.master,
-                    output=args.output, output_format="csv" if lower.endswith(".csv") else "parquet",
-                    report=report_path, work_dir=args.work_dir, resume=args.resume, progress=progress)
+    try:
+        rep = run_spark(args.graph, k, args.imbalance, args.seed, affinity=args.affinity, linkage=args.linkage,
+                        hub_cap=args.hub_cap, mode=args.mode, fmt=args.graph_format, weighted=args.weighted,
+                        node_weights=args.node_weights, allow_isolated=args.allow_isolated, master=args.master,
+                        output=args.output, output_format="csv" if lower.endswith(".csv") else "parquet",
+                        report=report_path, work_dir=args.work_dir, resume=args.resume, progress=progress)
+    finally:
+        if progress:
+            progress.close()
     if args.json:
         print(json.dumps(rep, indent=2, sort_keys=True, default=str))
     elif progress:
@@ -153,17 +161,57 @@ def _run_spark(args, k, report_path, progress):
 
 
 class _Progress:
-    """One line per finished stage on standard error."""
+    """Progress on standard error: one line per finished stage, and a bar over the plan's stages.
 
-    def __init__(self):
+    The engines announce their plan first (a row ``{"plan": [stage, ...]}``);
+    a stage row ``"<start>: <step>"`` completes the plan entry ``<step>`` (the
+    orders and line cuts of every start count as the entry ``orders``). The bar
+    is drawn only when standard error is a terminal; logs get the lines alone.
+    """
+
+    def __init__(self, console=None):
         from rich.console import Console
 
-        self.console = Console(stderr=True, highlight=False)
+        self.console = console or Console(stderr=True, highlight=False)
+        self.bar = None
+        self.task = None
+        self.plan = []
 
     def line(self, text):
-        self.console.print(f"[dim]shardline[/dim] {text}")
+        console = self.bar.console if self.bar is not None else self.console
+        console.print(f"[dim]shardline[/dim] {text}")
+
+    def start(self, plan):
+        from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+
+        self.plan = list(plan)
+        if self.console.is_terminal and self.bar is None:
+            self.bar = Progress(TextColumn("{task.description:<16}"), BarColumn(), MofNCompleteColumn(),
+                                TimeElapsedColumn(), console=self.console, transient=True)
+            self.bar.start()
+            self.task = self.bar.add_task(self.plan[0] if self.plan else "", total=len(self.plan))
+
+    def close(self):
+        if self.bar is not None:
+            self.bar.stop()
+            self.bar = None
+
+    def _advance(self, stage):
+        step = stage.rpartition(": ")[2]
+        step = "orders" if step in ("order", "line cut") else step
+        if step not in self.plan:
+            if self.bar is not None:
+                self.bar.update(self.task, description=stage[:16])
+            return
+        done = self.plan.index(step) + 1
+        if self.bar is not None:
+            nxt = self.plan[done] if done < len(self.plan) else "writing"
+            self.bar.update(self.task, completed=max(done, self.bar.tasks[0].completed), description=nxt)
 
     def __call__(self, row):
+        if "plan" in row:
+            self.start(row["plan"])
+            return
         if "stage" not in row or "seconds" not in row:
             self.line("  ".join(f"{key} {value}" for key, value in row.items()))
             return
@@ -174,6 +222,7 @@ class _Progress:
         if "rounds" in row:
             extra += f"  {row['rounds']} rounds, clusters {' → '.join(f'{c:,}' for c in row['clusters'])}"
         self.line(f"{row['stage']:<24} {row['seconds']:8.2f} s{extra}")
+        self._advance(str(row["stage"]))
 
 
 def _summary(report):

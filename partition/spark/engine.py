@@ -199,6 +199,8 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
             driver_graph.append(collect_graph(sg))
         return driver_graph[0]
 
+    if progress is not None and mode == "distributed":  # the plan, for progress bars
+        progress({"plan": ["affinity", "hierarchy", "orders", *steps]})
     if mode == "full":
         return _full_on_driver(graph(), sg, k, eps, seed, affinity, linkage, hub_cap, rule, nw_ones, rows, stage)
     t = time.perf_counter()
