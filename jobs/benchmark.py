@@ -32,7 +32,7 @@ the child process first partitions a small R-MAT graph (scale 10) to load or
 compile them, so the figures are of a warm run.
 
 Usage: python jobs/benchmark.py [--graphs NAME,...] [--k 2,8,...] [--eps 0,0.03] [--quick]
-       [--jobs 1] [--skip-quality] [--skip-speed] [--no-baselines]
+       [--jobs 1] [--skip-quality] [--skip-speed] [--no-baselines] [--affinity jaccard|ppr|unit]
 
 ``--quick`` runs k ∈ {2, 64}, ε = 0.03 on the five smallest graphs and the
 speed part; ``--jobs 2`` runs two quality cells at once (the seconds are then
@@ -120,14 +120,14 @@ def _balanced(graph, parts, k, eps):
 
 def quality_cell(task):
     """One cell: ``(name, k, eps, figure, cut, raw, baseline name, baseline cut, seconds)``."""
-    name, k, eps, figure, baselines = task
+    name, k, eps, figure, baselines, affinity = task
     from partition.baselines import run_baseline
     from partition.edgelist import read_graph
     from partition.partitioner import partition_graph
 
     graph = read_graph(graph_file(name))
     started = time.perf_counter()
-    result = partition_graph(graph, k, eps=eps, seed=0)
+    result = partition_graph(graph, k, eps=eps, seed=0, affinity=affinity)
     seconds = time.perf_counter() - started
     if not _balanced(graph, result.parts, k, eps):
         raise AssertionError(f"{name} k={k} eps={eps}: the balance rule does not hold")
@@ -145,10 +145,10 @@ def quality_cell(task):
     return name, k, eps, figure, cut_fraction(graph, result.parts), raw, best[0], best[1], seconds
 
 
-def run_quality(console, graphs, ks, epsilons, jobs, baselines):
+def run_quality(console, graphs, ks, epsilons, jobs, baselines, affinity="jaccard"):
     table_ref = reference_table()
-    tasks = [(g, k, e, table_ref[(g, k, e)], baselines) for g in graphs for k in ks for e in epsilons]
-    table = Table(title="Cut fraction against the reference table (seed 0, default plan)")
+    tasks = [(g, k, e, table_ref[(g, k, e)], baselines, affinity) for g in graphs for k in ks for e in epsilons]
+    table = Table(title=f"Cut fraction against the reference table (seed 0, default plan, {affinity} affinity)")
     for col in ("graph", "k", "ε", "table", "Shardline", "ratio", "raw line", "best baseline", "seconds"):
         table.add_column(col, justify="left" if col in ("graph", "best baseline") else "right")
     rows = []
@@ -201,7 +201,7 @@ def speed_child(scale, k, eps, queue):
         graph = read_graph(path)
         parse = time.perf_counter() - started
     started = time.perf_counter()
-    result = partition_graph(graph, k, eps=eps, seed=0)
+    result = partition_graph(graph, k, eps=eps, seed=0, affinity=affinity)
     total = time.perf_counter() - started
     ok = _balanced(graph, result.parts, k, eps)
     peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024  # kilobytes on Linux
@@ -244,6 +244,8 @@ def main(argv=None):
     ap.add_argument("--skip-quality", action="store_true")
     ap.add_argument("--skip-speed", action="store_true")
     ap.add_argument("--no-baselines", action="store_true", help="leave out the baseline column")
+    ap.add_argument("--affinity", default="jaccard", choices=("jaccard", "ppr", "unit"),
+                    help="edge affinity of the partitioner (default jaccard, the partitioner's default)")
     args = ap.parse_args(argv)
     console = Console(width=140)
     names = [line.split("|")[0].strip() for line in TABLE_TEXT.strip().splitlines()]
@@ -265,7 +267,7 @@ def main(argv=None):
         if not SHARED.is_dir():
             console.print(f"no shared datasets at {SHARED}; skipping the quality table")
         else:
-            run_quality(console, graphs, ks, epsilons, args.jobs, not args.no_baselines)
+            run_quality(console, graphs, ks, epsilons, args.jobs, not args.no_baselines, args.affinity)
     if not args.skip_speed:
         run_speed(console)
     return 0
