@@ -14,9 +14,10 @@ $(STAMP): pyproject.toml
 	$(BIN)/pip install --quiet -e '.[test]'
 	touch $(STAMP)
 
+# The demo runs the Spark engine on local Spark (distributed mode), then scores its output.
 demo: setup
-	$(BIN)/shardline run datasets/demo/larkspur-bay-rides.csv.gz --weight-column rides -k 8 --imbalance 0.03 --seed 1 -o out/demo/docks-to-shards.csv
-	$(BIN)/shardline score datasets/demo/larkspur-bay-rides.csv.gz --weight-column rides out/demo/docks-to-shards.csv --imbalance 0.03
+	$(BIN)/shardline run datasets/demo/larkspur-bay-rides.csv.gz --weight-column rides -k 8 --imbalance 0.03 --seed 1 --engine spark -o out/demo/docks-to-shards.parquet
+	$(BIN)/shardline score datasets/demo/larkspur-bay-rides.csv.gz --weight-column rides out/demo/docks-to-shards.parquet --imbalance 0.03
 
 test: setup
 	$(BIN)/python -m pytest -q -p no:cacheprovider

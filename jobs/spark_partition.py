@@ -4,6 +4,7 @@ Usage::
 
     spark-submit jobs/spark_partition.py GRAPH -k K [--imbalance EPS] [--seed S] -o OUT
         [--report R] [--mode distributed|full] [--work-dir DIR] [--resume] [--csv]
+        [the input options of shardline run: --format, --weight-column, --no-header, ...]
 
 Progress goes to standard error, one line per stage and hierarchy round.
 """
@@ -15,13 +16,14 @@ import json
 import sys
 
 from partition.affinity import DEFAULT_HUB_CAP, METHODS
+from partition.commands.common import add_graph_arguments
 from partition.errors import ShardlineError
 from partition.rules import LINKAGES
 
 
 def main(argv=None):
     ap = argparse.ArgumentParser(prog="spark_partition", description=__doc__.splitlines()[0])
-    ap.add_argument("graph", help="edge list (text or Parquet, any path Spark reads)")
+    add_graph_arguments(ap)  # the input options of every shardline command
     ap.add_argument("-k", "--shards", dest="k", type=int, required=True)
     ap.add_argument("--imbalance", type=float, default=0.0)
     ap.add_argument("--seed", type=int, default=0)
@@ -31,9 +33,6 @@ def main(argv=None):
     ap.add_argument("--linkage", choices=LINKAGES, default="sum")
     ap.add_argument("--hub-cap", type=int, default=DEFAULT_HUB_CAP)
     ap.add_argument("--mode", choices=["distributed", "full"], default="distributed")
-    ap.add_argument("--weighted", action="store_true")
-    ap.add_argument("--node-weights")
-    ap.add_argument("--allow-isolated", action="store_true")
     ap.add_argument("--csv", action="store_true", help="write CSV instead of Parquet")
     ap.add_argument("--work-dir", help="checkpoints (needed for --resume)")
     ap.add_argument("--resume", action="store_true", help="continue an interrupted run in --work-dir")
@@ -54,7 +53,9 @@ def main(argv=None):
                         node_weights=args.node_weights, allow_isolated=args.allow_isolated, master=args.master,
                         output=args.output, output_format="csv" if args.csv else "parquet",
                         report=args.report or args.output.rstrip("/") + ".report.json", work_dir=args.work_dir,
-                        resume=args.resume, collect_edges=args.collect_edges, progress=progress)
+                        resume=args.resume, collect_edges=args.collect_edges, progress=progress,
+                        fmt=args.graph_format, source_column=args.source_column, target_column=args.target_column,
+                        weight_column=args.weight_column, header=not args.no_header, delimiter=args.delimiter)
     except ShardlineError as exc:
         print(f"spark_partition: error: {exc}", file=sys.stderr)
         return 2

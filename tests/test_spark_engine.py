@@ -85,6 +85,38 @@ def test_input_normalised_like_memory(spark, mixed_graph, tmp_path):
     assert got.n == 12 * 12 + 4  # grid, triangle, the self-loop node kept
 
 
+def test_csv_with_header_and_weight_column_read_like_memory(spark, tmp_path):
+    """CSV/TSV input: header, picked columns, quoted string ids, comments, gzip; the same graph as in memory."""
+    import gzip
+
+    from partition.spark.io import collect_graph, read_graph_df
+
+    rows = ["# invented scenario: ferry berths and the crossings between them", "trips,from,to",
+            '3,"berth A",berth B', "2,berth B,berth C", "5,berth C,\"berth A\"", "1,berth B,berth A",
+            "", "4,berth D,berth C", "7,berth D,berth D"]
+    path = tmp_path / "crossings.csv.gz"
+    path.write_bytes(gzip.compress(("\n".join(rows) + "\n").encode()))
+    opts = dict(source_column="from", target_column="to", weight_column="trips")
+    ref = read_graph(path, **opts)
+    got = collect_graph(read_graph_df(spark, str(path), **opts))
+    assert list(got.ids) == list(ref.ids) == ["berth A", "berth B", "berth C", "berth D"]
+    assert np.array_equal(got.indptr, ref.indptr) and np.array_equal(got.indices, ref.indices)
+    assert np.array_equal(got.edge_weights, ref.edge_weights)  # (A,B) = 3 + 1 summed
+    tsv = tmp_path / "plain.tsv"
+    tsv.write_text("1\t2\n2\t3\n3\t1\n")
+    ref = read_graph(tsv, header=False)
+    got = collect_graph(read_graph_df(spark, str(tsv), header=False))
+    assert np.array_equal(got.ids, ref.ids) and np.array_equal(got.indices, ref.indices)
+    bad = tmp_path / "bad.csv"
+    bad.write_text("a,b\n1,2\n# note\n2,3,4\n")
+    with pytest.raises(InputError) as err:
+        read_graph_df(spark, str(bad))
+    assert err.value.line == 4 and "bad.csv" in str(err.value)
+    with pytest.raises(InputError) as err:
+        read_graph_df(spark, str(path), source_column="origin")
+    assert "origin" in str(err.value)
+
+
 def test_affinity_and_hierarchy_match_memory(spark, mixed_graph, tmp_path):
     from partition.spark.affinity import edge_affinity_df
     from partition.spark.frames import to_numpy

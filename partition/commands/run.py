@@ -149,15 +149,45 @@ def _run_spark(args, k, report_path, progress):
                         hub_cap=args.hub_cap, mode=args.mode, fmt=args.graph_format, weighted=args.weighted,
                         node_weights=args.node_weights, allow_isolated=args.allow_isolated, master=args.master,
                         output=args.output, output_format="csv" if lower.endswith(".csv") else "parquet",
-                        report=report_path, work_dir=args.work_dir, resume=args.resume, progress=progress)
+                        report=report_path, work_dir=args.work_dir, resume=args.resume, progress=progress,
+                        source_column=args.source_column, target_column=args.target_column,
+                        weight_column=args.weight_column, header=not args.no_header, delimiter=args.delimiter)
     finally:
         if progress:
             progress.close()
     if args.json:
         print(json.dumps(rep, indent=2, sort_keys=True, default=str))
-    elif progress:
-        progress.line(f"wrote {args.output} and {report_path}")
+    else:
+        _spark_summary(rep, args.graph)
     return 0
+
+
+def _spark_summary(rep, graph):
+    from rich.console import Console
+    from rich.table import Table
+
+    table = Table(title=f"{graph} → {rep['k']} shards (Spark engine, {rep['mode']} mode)", show_header=True)
+    table.add_column("figure")
+    table.add_column("value", justify="right")
+    bal = rep["balance"]
+    cut = f"{rep['cut']:,}" + (f" ({rep['cut_fraction']:.4f} of the edges)" if rep.get("cut_fraction") is not None
+                               else " (edge weight)")
+    rows = [
+        ("nodes / edges", f"{rep['graph']['nodes']:,} / {rep['graph']['edges']:,}"),
+        ("cut", cut),
+        ("largest shard / cap", f"{bal['max_load']:,} / {bal['cap']:,} ({'balanced' if bal['balanced'] else 'OVER'})"),
+        ("hierarchy rounds", str(rep["hierarchy"]["rounds"])),
+        ("seconds", f"{rep['seconds']:.1f}"),
+        ("written", f"{rep.get('output')} and its report"),
+    ]
+    starts = rep.get("starts") or []
+    if starts and "raw_cut" in starts[0]:
+        rows.insert(2, ("raw line cut → final", ", ".join(f"{s['start']}: {s['raw_cut']:,} → {s['cut']:,}"
+                                                         for s in starts)))
+    for a, b in rows:
+        table.add_row(a, b)
+    Console().print(table)
+    sys.stdout.flush()
 
 
 class _Progress:
@@ -212,8 +242,14 @@ class _Progress:
         if "plan" in row:
             self.start(row["plan"])
             return
-        if "stage" not in row or "seconds" not in row:
-            self.line("  ".join(f"{key} {value}" for key, value in row.items()))
+        if "stage" not in row or "seconds" not in row:  # a round inside a stage
+            rest = "  ".join(f"{key} {value:,}" if isinstance(value, int) else f"{key} {value}"
+                             for key, value in row.items() if key != "stage")
+            self.line(f"  {row.get('stage', '')}: {rest}")
+            return
+        if "clusters" in row and "rounds" not in row:  # one hierarchy round
+            self.line(f"  {row['stage']:<22} {row['seconds']:8.2f} s  clusters {row['clusters']:,}  "
+                      f"edges {row['edges']:,}  ({row.get('where', 'memory')})")
             return
         extra = ""
         if "cut_after" in row:

@@ -296,6 +296,7 @@ def _full_on_driver(g, sg, k, eps, seed, affinity, linkage, hub_cap, rule, nw_on
     from partition.refine.gains import cut_total, cut_weights
 
     report["cut"] = int(cut_total(g.indptr, g.indices, cut_weights(g.edge_weights)[0], parts))
+    report["cut_fraction"] = round(report["cut"] / sg.m, 6) if sg.m and not sg.weighted else None
     report["seconds"] = round(sum(r["seconds"] for r in rows) + res.report.get("seconds", 0.0), 4)
     return parts, np.asarray(res.order, dtype=np.int64), report
 
@@ -344,7 +345,8 @@ def write_assignment(spark, sg, parts, output, fmt="parquet"):
 def run_spark(graph_path, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum", hub_cap=DEFAULT_HUB_CAP,
               mode="distributed", fmt="auto", weighted=False, node_weights=None, allow_isolated=False,
               master=None, output=None, output_format="parquet", report=None, work_dir=None, resume=False,
-              collect_edges=None, progress=None, spark=None):
+              collect_edges=None, progress=None, spark=None, source_column=None, target_column=None,
+              weight_column=None, header=None, delimiter=None):
     """Run the Spark engine end to end on an edge list; returns the report dict.
 
     Parameters
@@ -353,7 +355,7 @@ def run_spark(graph_path, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum",
         Edge list (text or Parquet; any path Spark reads).
     k, eps, seed, affinity, linkage, hub_cap, mode
         As :func:`partition_spark`.
-    fmt, weighted, node_weights, allow_isolated
+    fmt, weighted, node_weights, allow_isolated, source_column, target_column, weight_column, header, delimiter
         Input options (:func:`partition.spark.io.read_graph_df`).
     master : str or None
         Spark master URL (default ``local[2]`` unless set by ``spark-submit``).
@@ -395,7 +397,8 @@ def run_spark(graph_path, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum",
     t = time.perf_counter()
     describe(spark, "read")
     sg = read_graph_df(spark, graph_path, fmt=fmt, weighted=weighted, node_weights=node_weights,
-                       allow_isolated=allow_isolated)
+                       allow_isolated=allow_isolated, source_column=source_column, target_column=target_column,
+                       weight_column=weight_column, header=header, delimiter=delimiter)
     read_row = {"stage": "read", "seconds": round(time.perf_counter() - t, 4), "nodes": sg.n, "edges": sg.m}
     if progress is not None:
         progress(read_row)

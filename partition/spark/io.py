@@ -55,17 +55,75 @@ class SparkGraph:
 
 
 def detect_format(path, fmt="auto"):
-    """``"parquet"`` for ``.parquet``/``.pq`` names or folders of Parquet parts, else ``"text"``."""
+    """The input format: folders of Parquet parts are ``"parquet"``, else as :func:`partition.edgelist.detect_format`."""
+    from partition.edgelist import detect_format as by_name
+
     if fmt != "auto":
-        if fmt not in ("text", "parquet"):
-            raise InputError(path, f"the Spark engine reads text or parquet edge lists, not {fmt!r}")
-        return fmt
+        return by_name(path, fmt)
     p = str(path).rstrip("/")
-    if p.endswith((".parquet", ".pq")):
-        return "parquet"
     if os.path.isdir(p) and any(f.endswith(".parquet") for f in os.listdir(p)):
         return "parquet"
-    return "text"
+    return by_name(p)
+
+
+def _data_lines(spark, path):
+    """Non-blank, non-comment lines of a text file as (``line`` text, 1-based ``lineno``)."""
+    from pyspark.sql import functions as F
+
+    sc = spark.sparkContext
+    try:
+        rdd = sc.textFile(str(path)).zipWithIndex()
+    except Exception as exc:  # noqa: BLE001
+        raise InputError(path, f"cannot read: {exc}") from exc
+    df = spark.createDataFrame(rdd, "line string, idx long")
+    t = F.trim(F.col("line"))
+    df = df.filter((F.length(t) > 0) & ~F.substring(t, 1, 1).isin("#", "%"))
+    return df.select(F.regexp_replace("line", "\r$", "").alias("line"), (F.col("idx") + 1).alias("lineno"))
+
+
+def _csv_fields(spark, path, delim, header, wanted, weighted):
+    """CSV/TSV rows as ``s``, ``d`` (strings), ``line`` and ``w`` (double) when weighted.
+
+    Follows :func:`partition.edgelist.read_graph` on CSV/TSV: comment and blank
+    lines skipped, the first remaining line is the header (unless ``header`` is
+    false: columns ``1, 2, 3, ...``), columns picked by name or position,
+    quoted fields allowed; a row with another number of fields, or an empty
+    value in a picked column, is an error naming its line.
+    """
+    import csv
+    import io
+    import re
+
+    from pyspark.sql import functions as F
+
+    from partition.edgelist import _pick_columns
+
+    lines = _data_lines(spark, path)
+    first = lines.orderBy("lineno").limit(1).collect()
+    if not first:
+        raise InputError(path, "the file is empty")
+    head = next(csv.reader(io.StringIO(first[0]["line"]), delimiter=delim))
+    width = len(head)
+    names = [h.strip() for h in head] if header else [str(i + 1) for i in range(width)]
+    chosen = _pick_columns(path, names, wanted, weighted, 3)
+    body = lines.filter(F.col("lineno") != first[0]["lineno"]) if header else lines
+    plain = ~F.col("line").contains('"')
+    bad = body.filter(plain & (F.size(F.split("line", re.escape(delim))) != width))
+    got = bad.select("lineno").orderBy("lineno").limit(1).collect()
+    if got:
+        raise InputError(path, f"malformed row: expected {width} fields", got[0]["lineno"])
+    schema = ", ".join(f"`c{i}` string" for i in range(width))
+    parsed = body.select(F.from_csv("line", schema, {"sep": delim}).alias("r"), "lineno")
+    idx = [names.index(c) for c in chosen]
+    cols = [F.col(f"r.c{idx[0]}").alias("s"), F.col(f"r.c{idx[1]}").alias("d"), F.col("lineno").alias("line")]
+    if weighted:
+        cols.append(F.expr(f"try_cast(r.c{idx[2]} as double)").alias("w"))
+    raw = parsed.select(*cols)
+    for c, name in (("s", chosen[0]), ("d", chosen[1])):
+        empty = raw.filter(F.col(c).isNull() | (F.col(c) == "")).select("line").orderBy("line").limit(1).collect()
+        if empty:
+            raise InputError(path, f"empty value in column {name!r}", empty[0]["line"])
+    return raw
 
 
 def _text_fields(spark, path, need):
@@ -101,7 +159,7 @@ def _weights_ok(df, col, path, what="weight", integer=False):
 
 
 def read_graph_df(spark, path, fmt="auto", weighted=False, source_column=None, target_column=None,
-                  weight_column=None, node_weights=None, allow_isolated=False):
+                  weight_column=None, node_weights=None, allow_isolated=False, header=None, delimiter=None):
     """Read and normalise an edge list into a :class:`SparkGraph`.
 
     Parameters
@@ -109,15 +167,19 @@ def read_graph_df(spark, path, fmt="auto", weighted=False, source_column=None, t
     spark : pyspark.sql.SparkSession
     path : str
         Any path Spark reads (file or folder).
-    fmt : {"auto", "text", "parquet"}
+    fmt : {"auto", "text", "csv", "tsv", "parquet"}
     weighted : bool
         Read a weight (third field, or ``weight_column``).
     source_column, target_column, weight_column : str or None
-        Parquet column names (default: the first two, then the third).
+        CSV/TSV/Parquet column names (default: the first two, then the third).
     node_weights : str or None
         Text file of ``id weight`` rows (non-negative integers).
     allow_isolated : bool
         Ids of the node-weights file without edges become isolated nodes.
+    header : bool or None
+        CSV/TSV: whether the first row names the columns (default True).
+    delimiter : str or None
+        CSV/TSV field delimiter (default ``,`` / tab).
 
     Returns
     -------
@@ -140,6 +202,10 @@ def read_graph_df(spark, path, fmt="auto", weighted=False, source_column=None, t
         if weighted:
             cols.append(F.expr("try_cast(f[2] as double)").alias("w"))
         raw = df.select(*cols)
+    elif fmt in ("csv", "tsv"):
+        delim = delimiter or ("," if fmt == "csv" else "\t")
+        raw = _csv_fields(spark, path, delim, header is not False, [source_column, target_column, weight_column],
+                          weighted)
     else:
         pq = spark.read.parquet(str(path))
         names = pq.columns
