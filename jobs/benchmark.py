@@ -201,7 +201,7 @@ def speed_child(scale, k, eps, queue):
         graph = read_graph(path)
         parse = time.perf_counter() - started
     started = time.perf_counter()
-    result = partition_graph(graph, k, eps=eps, seed=0, affinity=affinity)
+    result = partition_graph(graph, k, eps=eps, seed=0)
     total = time.perf_counter() - started
     ok = _balanced(graph, result.parts, k, eps)
     peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024  # kilobytes on Linux
@@ -215,7 +215,13 @@ def run_speed(console, scale=16, k=64, eps=0.03):
     queue = ctx.Queue()
     proc = ctx.Process(target=speed_child, args=(scale, k, eps, queue))
     proc.start()
-    out = queue.get()
+    out = None
+    while out is None:
+        try:
+            out = queue.get(timeout=5)
+        except Exception:  # queue.Empty: no result yet; a dead child will never send one
+            if not proc.is_alive():
+                raise SystemExit(f"the speed run's process ended with exit code {proc.exitcode} and no result")
     proc.join()
     console.print(f"R-MAT scale {scale} (edge factor 16): n = {out['n']:,}, m = {out['m']:,}; "
                   f"k = {k}, ε = {eps:g}, seed 0; numba kernels warm (cached, loaded by a small run first)")
