@@ -231,3 +231,29 @@ def test_export_command(run_output, tmp_path, capsys):
     assert "made from another graph" in capsys.readouterr().err
     assert main(["export", str(out)]) == 2
     assert np.all([f["rows"] >= 0 for f in manifest["files"]])
+
+
+def test_folder_checksum_is_sha256_over_its_data_files(tmp_path):
+    """A dataset folder's checksum: SHA-256 (FIPS 180-4, via hashlib) over each data file's path and digest."""
+    folder = tmp_path / "shards.parquet"
+    (folder / "sub").mkdir(parents=True)
+    (folder / "part-1.parquet").write_bytes(b"second")
+    (folder / "part-0.parquet").write_bytes(b"first")
+    (folder / "sub" / "part-2.parquet").write_bytes(b"third")
+    (folder / "_SUCCESS").write_bytes(b"")
+    (folder / ".part-0.parquet.crc").write_bytes(b"crc")
+    h = hashlib.sha256()
+    for rel, data in (("part-0.parquet", b"first"), ("part-1.parquet", b"second"), ("sub/part-2.parquet", b"third")):
+        h.update(rel.encode() + b"\0" + hashlib.sha256(data).digest())
+    assert export_mod.file_sha256(folder) == h.hexdigest()
+    (folder / "part-1.parquet").write_bytes(b"changed")
+    assert export_mod.file_sha256(folder) != h.hexdigest()
+
+
+def test_lookup_reads_a_parquet_folder(tmp_path):
+    folder = tmp_path / "out.parquet"
+    folder.mkdir()
+    pq.write_table(pa.table({"node": [5, 1], "shard": [0, 1]}), folder / "part-0.parquet")
+    pq.write_table(pa.table({"node": [3], "shard": [1]}), folder / "part-1.parquet")
+    ids, shards = read_node_shards(folder)
+    assert sorted(zip(ids.tolist(), shards.tolist())) == [(1, 1), (3, 1), (5, 0)]

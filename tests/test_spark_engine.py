@@ -252,3 +252,24 @@ def test_resume_after_kill_gives_the_same_result(mixed_graph, tmp_path):
     assert np.array_equal(table["shard"].to_numpy(), ref.parts)
     rep = json.loads(Path(str(out) + ".report.json").read_text())
     assert rep["cut"] == int(np.count_nonzero(ref.parts[g.rows()] != ref.parts[g.indices]) // 2)
+
+
+def test_spark_run_output_exports_like_the_memory_run(spark, mixed_graph, tmp_path):
+    """The Spark run's folder and report go through `export`: same tables and figures as the in-memory run's."""
+    from partition.cli import main
+    from partition.placement.export import export_run
+    from partition.spark.engine import run_spark
+
+    rep = run_spark(mixed_graph, 3, 0.0, 2, output=tmp_path / "spark.parquet",
+                    report=str(tmp_path / "spark.parquet.report.json"), work_dir=tmp_path / "w", spark=spark)
+    assert main(["run", mixed_graph, "-k", "3", "--seed", "2", "--starts", "hierarchy", "--refine",
+                 "window,fm,swaps", "--engine", "memory", "--quiet", "-o", str(tmp_path / "mem.csv")]) == 0
+    m_spark = export_run(tmp_path / "spark.parquet", tmp_path / "exp-spark", created="fixed")
+    m_mem = export_run(tmp_path / "mem.csv", tmp_path / "exp-mem", created="fixed")
+    got = {f["path"]: f["sha256"] for f in m_spark["files"]}
+    want = {f["path"]: f["sha256"] for f in m_mem["files"]}
+    assert got == want  # node→shard table and every per-shard list, byte for byte
+    for key in ("cut_edges", "cut_weight", "cut_fraction", "imbalance", "total_edge_weight"):
+        assert m_spark["metrics"][key] == pytest.approx(m_mem["metrics"][key], rel=1e-12), key
+    assert m_spark["input"]["sha256"] == m_mem["input"]["sha256"]
+    assert rep["input"]["nodes"] == read_graph(mixed_graph).n

@@ -61,13 +61,24 @@ _LEFT_OUT = ("cut_matrix", "cut_pairs")
 
 
 def file_sha256(path, chunk=1 << 20):
-    """Hex SHA-256 of a file's bytes, read in chunks.
+    """Hex SHA-256 of a file's bytes, read in chunks; of a folder dataset, over its data files.
+
+    A folder (a Parquet or CSV dataset as Spark writes it) is hashed as the
+    sequence, in sorted relative-path order, of every data file's relative
+    path (UTF-8, then a zero byte) and its bytes' own SHA-256 digest; names
+    starting with ``.`` or ``_`` (checksums, ``_SUCCESS`` markers) are left out.
 
     Raises
     ------
     InputError
         The file is missing or unreadable.
     """
+    if os.path.isdir(path):
+        h = hashlib.sha256()
+        for rel in _data_files(path):
+            h.update(rel.encode("utf-8") + b"\0")
+            h.update(bytes.fromhex(file_sha256(os.path.join(path, rel), chunk)))
+        return h.hexdigest()
     h = hashlib.sha256()
     try:
         with open(path, "rb") as fh:
@@ -317,6 +328,17 @@ def export_run(assignment, out_dir, fmt="parquet", report=None, graph=None, forc
         shutil.rmtree(tmp, ignore_errors=True)
         raise
     return manifest
+
+
+def _data_files(folder):
+    """Relative paths of the data files under ``folder``, sorted; hidden and ``_`` names left out."""
+    found = []
+    for root, dirs, files in os.walk(folder):
+        dirs[:] = sorted(d for d in dirs if not d.startswith((".", "_")))
+        for f in files:
+            if not f.startswith((".", "_")):
+                found.append(os.path.relpath(os.path.join(root, f), folder).replace(os.sep, "/"))
+    return sorted(found)
 
 
 def _umask():

@@ -663,24 +663,34 @@ def _repeat_error(name, ids, key, where):
 def _read(path):
     """``(name, ids, shards, where)`` of a node,shard file; repeated nodes are not checked."""
     name = os.fspath(path)
-    try:
-        with open(name, "rb") as fh:
-            raw = fh.read()
-    except FileNotFoundError:
-        raise InputError(name, "no such file") from None
-    except OSError as exc:
-        raise InputError(name, f"cannot be read ({exc.strerror or exc})") from None
-    if raw[:2] == b"\x1f\x8b":
+    if os.path.isdir(name):  # a Parquet dataset folder, as the Spark engine writes
         try:
-            raw = gzip.decompress(raw)
-        except (OSError, EOFError, zlib.error) as exc:
-            raise InputError(name, f"is not a valid gzip file ({exc})") from None
-    if raw[:4] == b"PAR1":
-        nodes, shards, where = _parquet_columns(name, raw)
-    elif name.lower().endswith((".parquet", ".pq")):
-        raise InputError(name, "is not a Parquet file (it lacks the PAR1 signature)")
+            table = pq.read_table(name)
+        except (pa.ArrowException, OSError) as exc:
+            raise InputError(name, f"is not a readable Parquet folder ({exc})") from None
+        raw = None
     else:
-        nodes, shards, where = _text_columns(name, raw)
+        try:
+            with open(name, "rb") as fh:
+                raw = fh.read()
+        except FileNotFoundError:
+            raise InputError(name, "no such file") from None
+        except OSError as exc:
+            raise InputError(name, f"cannot be read ({exc.strerror or exc})") from None
+    if raw is None:
+        nodes, shards, where = _table_columns(name, table)
+    else:
+        if raw[:2] == b"\x1f\x8b":
+            try:
+                raw = gzip.decompress(raw)
+            except (OSError, EOFError, zlib.error) as exc:
+                raise InputError(name, f"is not a valid gzip file ({exc})") from None
+        if raw[:4] == b"PAR1":
+            nodes, shards, where = _parquet_columns(name, raw)
+        elif name.lower().endswith((".parquet", ".pq")):
+            raise InputError(name, "is not a Parquet file (it lacks the PAR1 signature)")
+        else:
+            nodes, shards, where = _text_columns(name, raw)
 
     def fail(row, message):
         line, prefix = where(int(row))
@@ -770,6 +780,10 @@ def _parquet_columns(name, raw):
         table = pq.read_table(pa.BufferReader(raw))
     except (pa.ArrowException, OSError) as exc:
         raise InputError(name, f"is not a readable Parquet file ({exc})") from None
+    return _table_columns(name, table)
+
+
+def _table_columns(name, table):
     if "node" not in table.column_names or "shard" not in table.column_names:
         raise InputError(name, f"needs columns node and shard, has {table.column_names}")
     nodes, shards = table.column("node"), table.column("shard")

@@ -44,6 +44,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from partition import __version__
 from partition.affinity import DEFAULT_HUB_CAP, METHODS as AFFINITIES
 from partition.atomic import write_text
 from partition.balance import balance_rule
@@ -51,7 +52,7 @@ from partition.cut import line_cut
 from partition.errors import ParameterError, check_imbalance, check_parts
 from partition.rules import LINKAGES
 
-__all__ = ["run_spark", "partition_spark", "fits_driver", "MODES", "BYTES_PER_EDGE"]
+__all__ = ["run_spark", "partition_spark", "fits_driver", "result_figures", "MODES", "BYTES_PER_EDGE"]
 
 MODES = ("distributed", "full")
 BYTES_PER_EDGE = 40  # in-memory engine, per undirected edge (CSR both ways, affinities, refinement)
@@ -301,6 +302,36 @@ def _full_on_driver(g, sg, k, eps, seed, affinity, linkage, hub_cap, rule, nw_on
     return parts, np.asarray(res.order, dtype=np.int64), report
 
 
+def result_figures(spark, sg, parts, k):
+    """Cut and balance figures of a partition, with the names of :func:`partition.score.score`.
+
+    ``cut_edges`` (edges whose ends are on different shards), ``cut_weight``
+    and ``total_edge_weight`` (sums of the input weights, 1 per edge when
+    unweighted), ``cut_fraction`` (their ratio), ``shard_weights`` and
+    ``imbalance`` (heaviest shard over the mean, minus one). One aggregation
+    over the edges in Spark; the shards are an O(n) driver array.
+    """
+    from pyspark.sql import functions as F
+
+    from partition.spark.io import node_weight_array
+
+    parts = np.asarray(parts, dtype=np.int64)
+    sh = spark.createDataFrame(pd.DataFrame({"node": np.arange(parts.shape[0], dtype=np.int64), "shard": parts}))
+    e = (sg.edges.join(sh.withColumnRenamed("node", "u").withColumnRenamed("shard", "su"), "u")
+                 .join(sh.withColumnRenamed("node", "v").withColumnRenamed("shard", "sv"), "v"))
+    cut = F.col("su") != F.col("sv")
+    row = e.agg(F.sum(F.when(cut, 1).otherwise(0)).alias("ce"), F.sum(F.when(cut, F.col("w")).otherwise(0.0)).alias("cw"),
+                F.sum("w").alias("tw")).collect()[0]
+    nweights = node_weight_array(sg)
+    loads = np.bincount(parts, weights=None if nweights is None else nweights, minlength=k).astype(np.int64)
+    total_nw = int(loads.sum())
+    cw, tw = float(row["cw"] or 0.0), float(row["tw"] or 0.0)
+    return {"shards": int(k), "nodes": sg.n, "edges": sg.m, "cut_edges": int(row["ce"] or 0), "cut_weight": cw,
+            "total_edge_weight": tw, "cut_fraction": cw / tw if tw > 0 else 0.0, "total_node_weight": total_nw,
+            "shard_weights": loads.tolist(),
+            "imbalance": float(loads.max() / (total_nw / k) - 1.0) if total_nw else 0.0}
+
+
 def write_assignment(spark, sg, parts, output, fmt="parquet"):
     """Write ``node, shard`` rows (user ids) to ``output`` (a folder) atomically: temporary folder, then rename.
 
@@ -387,7 +418,8 @@ def run_spark(graph_path, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum",
     ParameterError
         Bad options; ``resume`` without ``work_dir``.
     """
-    from partition.spark.io import read_graph_df
+    from partition.placement.export import file_sha256
+    from partition.spark.io import node_weight_array, read_graph_df
     from partition.spark.session import describe, spark_session
 
     if resume and work_dir is None:
@@ -407,10 +439,19 @@ def run_spark(graph_path, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum",
                                         progress=progress)
     rep["stages"].insert(0, read_row)
     rep["seconds"] = round(rep["seconds"] + read_row["seconds"], 4)
+    describe(spark, "result figures")
+    rep["tool"] = f"shardline {__version__}"
+    rep["imbalance_allowed"] = rep.get("imbalance_allowed", eps)
+    rep["input"] = {"graph": str(graph_path), "nodes": sg.n, "edges": sg.m, "weighted_edges": sg.weighted,
+                    "weighted_nodes": sg.node_weights is not None,
+                    # a checksum where the driver can read the file (local disk or shared mount)
+                    "sha256": file_sha256(graph_path) if os.path.isfile(graph_path) else None}
+    rep["result"] = result_figures(spark, sg, parts, k)
     if output is not None:
         describe(spark, "write")
         write_assignment(spark, sg, parts, output, output_format)
         rep["output"] = str(output)
+    rep["outputs"] = {"assignment": None if output is None else str(output), "report": report}
     if report is not None:
         write_text(report, json.dumps(rep, indent=2, default=str) + "\n")
     return rep
