@@ -273,3 +273,32 @@ def test_spark_run_output_exports_like_the_memory_run(spark, mixed_graph, tmp_pa
         assert m_spark["metrics"][key] == pytest.approx(m_mem["metrics"][key], rel=1e-12), key
     assert m_spark["input"]["sha256"] == m_mem["input"]["sha256"]
     assert rep["input"]["nodes"] == read_graph(mixed_graph).n
+
+
+def test_recut_on_spark_equals_memory(spark, mixed_graph, tmp_path):
+    """A Spark run's stored order, re-cut into more shards on Spark and in memory: identical shards."""
+    from partition.placement.recut import read_order, recut
+    from partition.spark.engine import run_spark
+    from partition.spark.io import read_graph_df
+    from partition.spark.recut import read_order_df, recut_spark
+
+    order_path = tmp_path / "order.parquet"
+    run_spark(mixed_graph, 3, 0.0, 2, output=tmp_path / "run.parquet", order_output=order_path,
+              work_dir=tmp_path / "w", spark=spark)
+    g = read_graph(mixed_graph)
+    sg = read_graph_df(spark, mixed_graph)
+    ref_order = partition_graph(g, 3, 0.0, 2, starts=("hierarchy",), refine=UNIT).order
+    assert np.array_equal(read_order(order_path, g), ref_order)  # the in-memory reader takes the folder
+    order = read_order_df(spark, str(order_path), sg)
+    assert np.array_equal(order, ref_order)
+    for k, eps in ((4, 0.0), (5, 0.03)):
+        got, stats = recut_spark(spark, sg, order, k, eps=eps, seed=1)
+        want, ref = recut(g, ref_order, k, eps=eps, seed=1)
+        assert np.array_equal(got, want), (k, eps)
+        for key in ("cut_line", "cut_window", "cut", "floor", "min_load", "max_load", "balanced"):
+            assert stats[key] == ref[key], key
+    bad = tmp_path / "bad-order.csv"
+    bad.write_text("node,position\n7,0\n10,0\n")
+    with pytest.raises(InputError) as err:
+        read_order_df(spark, str(bad), sg)
+    assert "bad-order.csv" in str(err.value)

@@ -141,8 +141,8 @@ def run(args) -> int:
 def _run_spark(args, k, report_path, progress):
     from partition.spark.engine import run_spark
 
-    if args.previous or args.order_output or args.hierarchy_output:
-        raise ParameterError("--previous, --order-output and --hierarchy-output need --engine memory for now")
+    if args.previous or args.hierarchy_output:
+        raise ParameterError("--previous and --hierarchy-output need --engine memory for now")
     lower = str(args.output).lower()
     try:
         rep = run_spark(args.graph, k, args.imbalance, args.seed, affinity=args.affinity, linkage=args.linkage,
@@ -151,7 +151,8 @@ def _run_spark(args, k, report_path, progress):
                         output=args.output, output_format="csv" if lower.endswith(".csv") else "parquet",
                         report=report_path, work_dir=args.work_dir, resume=args.resume, progress=progress,
                         source_column=args.source_column, target_column=args.target_column,
-                        weight_column=args.weight_column, header=not args.no_header, delimiter=args.delimiter)
+                        weight_column=args.weight_column, header=not args.no_header, delimiter=args.delimiter,
+                        order_output=args.order_output)
     finally:
         if progress:
             progress.close()

@@ -377,7 +377,7 @@ def run_spark(graph_path, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum",
               mode="distributed", fmt="auto", weighted=False, node_weights=None, allow_isolated=False,
               master=None, output=None, output_format="parquet", report=None, work_dir=None, resume=False,
               collect_edges=None, progress=None, spark=None, source_column=None, target_column=None,
-              weight_column=None, header=None, delimiter=None):
+              weight_column=None, header=None, delimiter=None, order_output=None):
     """Run the Spark engine end to end on an edge list; returns the report dict.
 
     Parameters
@@ -392,6 +392,9 @@ def run_spark(graph_path, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum",
         Spark master URL (default ``local[2]`` unless set by ``spark-submit``).
     output : str or None
         Folder for the ``id, shard`` table (written atomically).
+    order_output : str or None
+        Folder for the ``node, position`` table of the linear order
+        (:func:`partition.spark.recut.write_order`), the input of a later re-cut.
     output_format : {"parquet", "csv"}
     report : str or None
         JSON report path (written atomically).
@@ -451,7 +454,13 @@ def run_spark(graph_path, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum",
         describe(spark, "write")
         write_assignment(spark, sg, parts, output, output_format)
         rep["output"] = str(output)
-    rep["outputs"] = {"assignment": None if output is None else str(output), "report": report}
+    if order_output is not None:
+        from partition.spark.recut import write_order
+
+        describe(spark, "write order")
+        write_order(spark, sg, order, order_output)
+    rep["outputs"] = {"assignment": None if output is None else str(output), "report": report,
+                      "order": None if order_output is None else str(order_output)}
     if report is not None:
         write_text(report, json.dumps(rep, indent=2, default=str) + "\n")
     return rep
