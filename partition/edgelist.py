@@ -467,7 +467,7 @@ def _float_weights(col, path, row_to_line, what):
     bad = ~np.isfinite(w) | (w < 0)
     if bad.any():
         row = int(np.flatnonzero(bad)[0])
-        raise InputError(path, f"{what} {w[row]!r} is not allowed: weights must be finite and >= 0", row_to_line(row))
+        raise InputError(path, f"{what} {float(w[row])!r} is not allowed: weights must be finite and >= 0", row_to_line(row))
     return w
 
 
