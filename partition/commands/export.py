@@ -37,6 +37,10 @@ def add_arguments(parser):
     parser.add_argument("--verify", action="store_true",
                         help="check the export folder RUN_OUTPUT against its manifest (and --graph)")
     parser.add_argument("--json", action="store_true", help="print the manifest (or the check) as JSON")
+    parser.add_argument("--engine", choices=("memory", "spark"), default="memory",
+                        help="memory (default): one file per table; spark: the tables are written by Spark as "
+                             "dataset folders, for placements too large for one machine")
+    parser.add_argument("--master", help="--engine spark: Spark master URL (default local[2])")
 
 
 def run(args) -> int:
@@ -56,8 +60,21 @@ def run(args) -> int:
         return 0
     if args.output is None:
         raise ParameterError("give the folder to create with -o DIR")
-    manifest = export_run(args.source, args.output, fmt=args.export_format, report=args.report,
-                          graph=args.graph, force=args.force)
+    if args.engine == "spark":
+        import tempfile
+
+        from partition.spark.export import export_run_spark
+        from partition.spark.session import spark_session
+
+        spark = spark_session(master=args.master, work_dir=tempfile.mkdtemp(prefix="shardline-export-"))
+        try:
+            manifest = export_run_spark(spark, args.source, args.output, fmt=args.export_format,
+                                        report=args.report, graph=args.graph, force=args.force)
+        finally:
+            spark.stop()
+    else:
+        manifest = export_run(args.source, args.output, fmt=args.export_format, report=args.report,
+                              graph=args.graph, force=args.force)
     if args.json:
         print(json.dumps(manifest, indent=2, sort_keys=True))
         return 0
