@@ -190,10 +190,12 @@ def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, st
                              "gain": np.full(mov.shape[0], int(g), dtype=np.int64)})
 
     low = 0
+    pdf = cm = None
     for r in range(k if max_rounds is None else int(max_rounds)):
         describe(spark, f"refine fm: round {r + 1}")
-        pdf = _parts_df(spark, parts, nw).localCheckpoint()
-        cm = cut_matrix(spark, wedges, pdf, k)
+        if pdf is None:  # the shards changed (or first round): new start-of-round frames and cut matrix
+            pdf = _parts_df(spark, parts, nw).localCheckpoint()
+            cm = cut_matrix(spark, wedges, pdf, k)
         live = (cm > 0) & ~settled
         if not live.any():
             break
@@ -210,6 +212,8 @@ def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, st
             for u in np.unique(res["unit"].to_numpy(np.int64)[diff]):
                 changed[int(u)] = True
             parts[nodes] = new
+            if diff.any():
+                pdf = None
         for (a, b), ch in zip(pairs, changed):
             if not ch:
                 settled[a, b] = settled[b, a] = True
@@ -309,7 +313,7 @@ def spark_swaps(spark, sg, parts, rule, node_weights, max_rounds=20, tol=1e-3, i
                 stale[a, b] = stale[b, a] = True
         if progress is not None:
             progress({"stage": f"swaps round {rounds}", "pairs": len(pairs), "gain": int(sum(gains))})
-        if rounds < max_rounds and cut > 0:
+        if rounds < max_rounds and cut > 0 and any(moved):  # unchanged shards: same frames, same matrix
             pdf = _parts_df(spark, parts, nw).localCheckpoint()
             cm = cut_matrix(spark, wedges, pdf, k)
     return parts
