@@ -52,7 +52,7 @@ from partition.atomic import atomic_path, write_bytes, write_text
 from partition.errors import InputError, ParameterError
 from partition.placement.lookup import read_node_shards
 
-__all__ = ["export_run", "verify_export", "file_sha256", "find_input_graph", "FORMATS", "MANIFEST"]
+__all__ = ["export_run", "verify_export", "file_sha256", "find_input_graph", "manifest_head", "FORMATS", "MANIFEST"]
 
 FORMATS = ("parquet", "csv", "jsonl")
 MANIFEST = "manifest.json"
@@ -297,25 +297,7 @@ def export_run(assignment, out_dir, fmt="parquet", report=None, graph=None, forc
     if shards.size and int(shards.max()) >= k:
         raise InputError(assignment, f"uses shard {int(shards.max())} but the report says k = {k}")
     ids, shards = _sorted_rows(ids, shards)
-    metrics = {key: v for key, v in (rep.get("result") or {}).items() if key not in _LEFT_OUT}
-    manifest = {
-        "manifest_version": 1,
-        "tool": f"shardline {__version__}",
-        "created_utc": created if created is not None else _now_utc(),
-        "nondeterministic": ["created_utc"],
-        "format": fmt,
-        "input": {"graph": graph_path, "sha256": graph_sum, "bytes": os.path.getsize(graph_path),
-                  "nodes": rep["input"].get("nodes"), "edges": rep["input"].get("edges")},
-        "source": {"assignment": {"path": assignment, "sha256": file_sha256(assignment)},
-                   "report": {"path": report_path, "sha256": file_sha256(report_path)},
-                   "tool": rep.get("tool")},
-        "k": k,
-        "imbalance": rep.get("imbalance_allowed"),
-        "seed": rep.get("seed"),
-        "engine": rep.get("engine"),
-        "options": rep.get("options"),
-        "metrics": metrics,
-    }
+    manifest = manifest_head(rep, fmt, graph_path, graph_sum, assignment, report_path, created)
     parent = os.path.dirname(os.path.abspath(out_dir))
     os.makedirs(parent, exist_ok=True)
     tmp = tempfile.mkdtemp(prefix="." + os.path.basename(out_dir) + ".", suffix=".tmp", dir=parent)
@@ -339,6 +321,32 @@ def _data_files(folder):
             if not f.startswith((".", "_")):
                 found.append(os.path.relpath(os.path.join(root, f), folder).replace(os.sep, "/"))
     return sorted(found)
+
+
+def manifest_head(rep, fmt, graph_path, graph_sum, assignment, report_path, created=None):
+    """The manifest's fields other than ``files``, from the run report and the checked input.
+
+    Metrics are the report's ``result`` without the bulky cut matrix entries.
+    """
+    metrics = {key: v for key, v in (rep.get("result") or {}).items() if key not in _LEFT_OUT}
+    return {
+        "manifest_version": 1,
+        "tool": f"shardline {__version__}",
+        "created_utc": created if created is not None else _now_utc(),
+        "nondeterministic": ["created_utc"],
+        "format": fmt,
+        "input": {"graph": graph_path, "sha256": graph_sum, "bytes": os.path.getsize(graph_path),
+                  "nodes": rep["input"].get("nodes"), "edges": rep["input"].get("edges")},
+        "source": {"assignment": {"path": assignment, "sha256": file_sha256(assignment)},
+                   "report": {"path": report_path, "sha256": file_sha256(report_path)},
+                   "tool": rep.get("tool")},
+        "k": int(rep["k"]),
+        "imbalance": rep.get("imbalance_allowed"),
+        "seed": rep.get("seed"),
+        "engine": rep.get("engine"),
+        "options": rep.get("options"),
+        "metrics": metrics,
+    }
 
 
 def _umask():

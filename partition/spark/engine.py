@@ -350,16 +350,25 @@ def write_assignment(spark, sg, parts, output, fmt="parquet"):
     """
     if fmt not in ("parquet", "csv"):
         raise ParameterError(f"output format must be parquet or csv, got {fmt!r}")
+    sh = spark.createDataFrame(pd.DataFrame({"node": np.arange(len(parts), dtype=np.int64),
+                                             "shard": np.asarray(parts, dtype=np.int64)}))
+    # the dense index is internal; the file speaks the user's ids, in the column
+    # names every node→shard file of Shardline uses
+    write_folder(sg.nodes.join(sh, "node").orderBy("node").selectExpr("id as node", "shard"), output, fmt)
+
+
+def write_folder(table, output, fmt="parquet"):
+    """Write a DataFrame to the folder ``output`` atomically: a hidden temporary sibling, then a rename.
+
+    ``fmt`` is ``"parquet"`` (part files as Spark writes them) or ``"csv"`` (one
+    part with a header row). An existing folder is moved aside, the new one
+    renamed in, then the old one removed.
+    """
     out = Path(output)
     out.parent.mkdir(parents=True, exist_ok=True)
     tmp = out.with_name(f".{out.name}.tmp-{os.getpid()}")
     if tmp.exists():
         shutil.rmtree(tmp)
-    sh = spark.createDataFrame(pd.DataFrame({"node": np.arange(len(parts), dtype=np.int64),
-                                             "shard": np.asarray(parts, dtype=np.int64)}))
-    # the dense index is internal; the file speaks the user's ids, in the column
-    # names every node→shard file of Shardline uses
-    table = sg.nodes.join(sh, "node").orderBy("node").selectExpr("id as node", "shard")
     if fmt == "parquet":
         table.write.parquet(str(tmp))
     else:

@@ -24,12 +24,10 @@ import os
 import shutil
 import tempfile
 
-from partition import __version__
 from partition.atomic import write_text
 from partition.errors import InputError, ParameterError
 from partition.placement.export import (
-    _EXT, _LEFT_OUT, FORMATS, MANIFEST, _check_graph, _data_files, _now_utc, _read_report, _swap_in, _umask,
-    file_sha256,
+    _EXT, FORMATS, MANIFEST, _check_graph, _data_files, _read_report, _swap_in, _umask, file_sha256, manifest_head,
 )
 
 __all__ = ["export_run_spark"]
@@ -133,26 +131,8 @@ def export_run_spark(spark, assignment, out_dir, fmt="parquet", report=None, gra
     nodes = rep["input"].get("nodes")
     if nodes is not None and n != int(nodes):
         raise InputError(assignment, f"holds {n} nodes but the report's graph has {nodes}")
-    metrics = {key: v for key, v in (rep.get("result") or {}).items() if key not in _LEFT_OUT}
-    manifest = {
-        "manifest_version": 1,
-        "tool": f"shardline {__version__}",
-        "created_utc": created if created is not None else _now_utc(),
-        "nondeterministic": ["created_utc"],
-        "format": fmt,
-        "tables": "spark-folders",
-        "input": {"graph": graph_path, "sha256": graph_sum, "bytes": os.path.getsize(graph_path),
-                  "nodes": rep["input"].get("nodes"), "edges": rep["input"].get("edges")},
-        "source": {"assignment": {"path": assignment, "sha256": file_sha256(assignment)},
-                   "report": {"path": report_path, "sha256": file_sha256(report_path)},
-                   "tool": rep.get("tool")},
-        "k": k,
-        "imbalance": rep.get("imbalance_allowed"),
-        "seed": rep.get("seed"),
-        "engine": rep.get("engine"),
-        "options": rep.get("options"),
-        "metrics": metrics,
-    }
+    manifest = manifest_head(rep, fmt, graph_path, graph_sum, assignment, report_path, created)
+    manifest["tables"] = "spark-folders"
     ext = _EXT[fmt]
     width = max(5, len(str(k - 1)))
     parent = os.path.dirname(os.path.abspath(out_dir))

@@ -25,9 +25,6 @@ network partitions", DAC 1982.
 from __future__ import annotations
 
 import dataclasses
-import os
-import shutil
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -45,25 +42,12 @@ def write_order(spark, sg, order, output):
     Parquet folder unless the name ends in ``.csv`` (then a folder of CSV
     parts with a header), written to a hidden temporary sibling and renamed.
     """
-    out = Path(output)
-    out.parent.mkdir(parents=True, exist_ok=True)
-    tmp = out.with_name(f".{out.name}.tmp-{os.getpid()}")
-    if tmp.exists():
-        shutil.rmtree(tmp)
+    from partition.spark.engine import write_folder
+
     order = np.asarray(order, dtype=np.int64)
     pos = spark.createDataFrame(pd.DataFrame({"node": order, "position": np.arange(order.size, dtype=np.int64)}))
     table = sg.nodes.join(pos, "node").orderBy("position").selectExpr("id as node", "position")
-    if str(output).lower().endswith(".csv"):
-        table.coalesce(1).write.option("header", True).csv(str(tmp))
-    else:
-        table.write.parquet(str(tmp))
-    old = None
-    if out.exists():
-        old = out.with_name(f".{out.name}.old-{os.getpid()}")
-        out.rename(old)
-    tmp.rename(out)
-    if old is not None:
-        shutil.rmtree(old, ignore_errors=True)
+    write_folder(table, output, "csv" if str(output).lower().endswith(".csv") else "parquet")
 
 
 def read_order_df(spark, path, sg):
