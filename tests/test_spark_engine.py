@@ -174,6 +174,26 @@ def test_full_mode_string_ids_and_node_weights(spark, tmp_path):
     assert np.array_equal(order, ref.order)
 
 
+def test_distributed_mode_weighted_edges_and_nodes_match_memory(spark, tmp_path):
+    # a made-up delivery network: 10 × 10 grid of depots, trips per road 1..5, parcels per depot 1..3
+    from partition.spark.engine import partition_spark
+    from partition.spark.io import read_graph_df
+
+    a, b = _grid(10, 10)
+    lines = [f"{x} {y} {1 + (7 * x + 3 * y) % 5}" for x, y in zip(a, b)]
+    path = tmp_path / "depots.txt"
+    path.write_text("\n".join(lines) + "\n")
+    nwp = tmp_path / "depots.weights"
+    nwp.write_text("\n".join(f"{i} {1 + i % 3}" for i in range(100)) + "\n")
+    g = read_graph(str(path), weighted=True, node_weights=str(nwp))
+    sg = read_graph_df(spark, str(path), weighted=True, node_weights=str(nwp))
+    parts, order, rep = partition_spark(spark, sg, 4, 0.03, seed=3, mode="distributed", work_dir=tmp_path / "w")
+    ref = partition_graph(g, 4, 0.03, 3, starts=("hierarchy",), refine=UNIT)
+    assert np.array_equal(order, ref.order)
+    assert np.array_equal(parts, ref.parts)
+    assert rep["balance"]["balanced"]
+
+
 def test_text_and_parquet_give_the_same_partition(spark, mixed_graph, tmp_path):
     import pyarrow as pa
     import pyarrow.parquet as pq

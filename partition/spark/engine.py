@@ -112,12 +112,28 @@ def _fm_options(step_options):
     return fm
 
 
-def _cut(spark, sg, parts):
-    from partition.spark.refine import _parts_df, cut_matrix, int_weights
+class _Blocks:
+    """The refinement's cached edge blocks, built when first needed and shared by the steps.
 
-    wedges, _ = int_weights(spark, sg, "cut")
-    pdf = _parts_df(spark, np.asarray(parts, dtype=np.int64), np.zeros(len(parts), dtype=np.int64))
-    return int(cut_matrix(spark, wedges.select("u", "v", "wi"), pdf, int(np.max(parts)) + 1).sum()) // 2
+    ``cut`` and ``fm`` weights (:func:`partition.spark.refine.int_weights`) are
+    the same ones on unweighted graphs, so one set of blocks serves both.
+    """
+
+    def __init__(self, spark, sg):
+        self.spark, self.sg, self.made = spark, sg, {}
+
+    def __call__(self, kind):
+        from partition.spark.refine import edge_blocks
+
+        kind = kind if self.sg.weighted else "cut"
+        if kind not in self.made:
+            self.made[kind] = edge_blocks(self.spark, self.sg, kind)
+        return self.made[kind]
+
+    def release(self):
+        for b in self.made.values():
+            b.release()
+        self.made.clear()
 
 
 def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum", hub_cap=DEFAULT_HUB_CAP,
@@ -230,7 +246,10 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
         t = time.perf_counter()
         parts = np.asarray(line_cut(order, nweights, k, eps), dtype=np.int64)
         stage(f"{name}: line cut", t)
-        raw = _cut(spark, sg, parts)
+        t = time.perf_counter()
+        blocks = _Blocks(spark, sg)
+        raw = blocks("cut").cut_total(parts)
+        stage(f"{name}: edge blocks", t)
         for step in steps:
             t = time.perf_counter()
             key = f"{name}-{step}"
@@ -239,9 +258,10 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
             elif step == "window":
                 parts = spark_window(spark, sg, order, parts, rule, nweights, progress=progress)
             elif step == "fm":
-                parts = spark_fm(spark, sg, parts, rule, nw_ones, seed=seed, progress=progress, **fm_opts)
+                parts = spark_fm(spark, sg, parts, rule, nw_ones, seed=seed, progress=progress, blocks=blocks("fm"),
+                                 **fm_opts)
             elif step == "swaps":
-                parts = spark_swaps(spark, sg, parts, rule, nweights, progress=progress)
+                parts = spark_swaps(spark, sg, parts, rule, nweights, progress=progress, blocks=blocks("cut"))
             else:  # not unit based: on the driver with the in-memory step
                 from partition.partitioner import _refine_step
 
@@ -249,7 +269,8 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
             parts = np.asarray(parts, dtype=np.int64)
             ck.save(key, {"parts": parts})
             stage(f"{name}: {step}", t, where="spark" if step in UNIT_STEPS else "driver")
-        final = _cut(spark, sg, parts)
+        final = blocks("cut").cut_total(parts)
+        blocks.release()
         start_rows.append({"start": name, "raw_cut": raw, "cut": final})
         if best is None or final < best[0]:
             best = (final, name, parts, order)

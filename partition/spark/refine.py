@@ -11,12 +11,14 @@ numba kernels the same arrays, so the result is identical:
     line, shifted to start at 0 (windows and tables shift with it).
 ``fm`` (:func:`partition.refine.fm.refine_fm`, schedule ``matched``)
     and ``swaps`` (:func:`partition.refine.swaps.refine_swaps`, ``matched``).
-    The start-of-round shard cut matrix is a ``groupBy`` over the edges; the
-    driver takes the greedy matching and the settled/stale bookkeeping; each
-    shard pair is a unit: ``cogroup`` of its nodes and of the CSR rows of those
-    nodes (neighbour shards attached), and the task renumbers the nodes it sees
-    in increasing id order (a monotone map, so every "smaller node first" tie
-    rule is kept) and calls :func:`~partition.refine.fm.fm_pair` or
+    The edges are packed once into cached numpy blocks
+    (:class:`~partition.spark.blocks.EdgeBlocks`); each round the shard array is
+    broadcast. The start-of-round shard cut matrix is one job over the blocks;
+    the driver takes the greedy matching and the settled/stale bookkeeping; each
+    shard pair is a unit: one shuffle brings every directed edge leaving the
+    pair's nodes to the unit's task, which renumbers the nodes it sees in
+    increasing id order (a monotone map, so every "smaller node first" tie rule
+    is kept) and calls :func:`~partition.refine.fm.fm_pair` or
     :func:`~partition.refine.swaps.swap_pair`.
 
 The driver holds O(n) arrays (positions, shards); the edges stay in Spark.
@@ -37,11 +39,9 @@ from partition.refine.schedule import matched_pairs
 from partition.refine.swaps import swap_pair
 from partition.refine.window_dp import _free_mask, default_window, window_dp_round
 from partition.rules import AFFINITY_SCALE
-from partition.spark.frames import to_numpy
-from partition.spark.order import directed_edges
 from partition.spark.session import describe
 
-__all__ = ["int_weights", "spark_window", "spark_fm", "spark_swaps", "UNIT_STEPS"]
+__all__ = ["int_weights", "edge_blocks", "spark_window", "spark_fm", "spark_swaps", "UNIT_STEPS"]
 
 UNIT_STEPS = ("window", "fm", "swaps")
 _EMPTY = np.empty(0, dtype=np.int64)
@@ -74,72 +74,44 @@ def int_weights(spark, sg, kind):
     return sg.edges.withColumn("wi", F.bround(F.col("w") * float(AFFINITY_SCALE), 0).cast("long")), False
 
 
-def _parts_df(spark, parts, nw):
-    return spark.createDataFrame(pd.DataFrame({"node": np.arange(parts.shape[0], dtype=np.int64),
-                                               "shard": parts.astype(np.int64), "nw": nw.astype(np.int64)}))
-
-
-def cut_matrix(spark, wedges, pdf, k):
-    """``k × k`` integer cut matrix of the partition (a ``groupBy`` over the edges)."""
-    from pyspark.sql import functions as F
-
-    su = pdf.select(F.col("node").alias("u"), F.col("shard").alias("su"))
-    sv = pdf.select(F.col("node").alias("v"), F.col("shard").alias("sv"))
-    j = wedges.join(su, "u").join(sv, "v").filter(F.col("su") != F.col("sv"))
-    got = to_numpy(j.groupBy("su", "sv").agg(F.sum("wi").alias("c")), ["su", "sv", "c"])
-    cm = np.zeros((k, k), dtype=np.int64)
-    su_, sv_, c = (got[x].astype(np.int64) for x in ("su", "sv", "c"))
-    np.add.at(cm, (su_, sv_), c)
-    np.add.at(cm, (sv_, su_), c)
-    return cm
-
-
-def _unit_frames(spark, wedges, pdf, pairs):
-    """Nodes and CSR rows of every unit, keyed by ``unit`` (pair index)."""
-    from pyspark.sql import functions as F
-
-    rows = [(int(a), i) for i, (a, b) in enumerate(pairs)] + [(int(b), i) for i, (a, b) in enumerate(pairs)]
-    nodes = pdf.join(F.broadcast(spark.createDataFrame(rows, "shard long, unit long")), "shard").localCheckpoint()
-    xmap = spark.createDataFrame(rows, "sx long, unit long")
-    both = directed_edges(wedges.select("u", "v", F.col("wi").alias("w")))
-    ent = (both.join(pdf.select(F.col("node").alias("x"), F.col("shard").alias("sx")), "x")
-               .join(F.broadcast(xmap), "sx")
-               .join(pdf.select(F.col("node").alias("y"), F.col("shard").alias("sy"), F.col("nw").alias("nwy")), "y")
-               .select("unit", "x", "y", "w", "sy", "nwy")).localCheckpoint()
-    return nodes, ent
-
-
-def _local(nodes, ent):
-    """Local CSR over the unit's nodes and their neighbours, ids in increasing global order."""
-    gn = nodes["node"].to_numpy(np.int64)
-    ex = ent["x"].to_numpy(np.int64)
-    ey = ent["y"].to_numpy(np.int64)
+def _local(gn, gshard, gnw, ex, ey, w, sy, nwy):
+    """Local CSR over a unit's nodes ``gn`` and their neighbours, ids in increasing global order."""
     ids = np.union1d(gn, ey)
     loc_n = np.searchsorted(ids, gn)
     lx, ly = np.searchsorted(ids, ex), np.searchsorted(ids, ey)
     o = np.lexsort((ly, lx))
     lx, ly = lx[o], ly[o]
-    w = ent["w"].to_numpy(np.int64)[o]
     size = ids.shape[0]
     indptr = np.zeros(size + 1, dtype=np.int64)
     np.cumsum(np.bincount(lx, minlength=size), out=indptr[1:])
     parts = np.full(size, -1, dtype=np.int64)
     nwl = np.zeros(size, dtype=np.int64)
-    parts[ly] = ent["sy"].to_numpy(np.int64)[o]
-    nwl[ly] = ent["nwy"].to_numpy(np.int64)[o]
-    parts[loc_n] = nodes["shard"].to_numpy(np.int64)
-    nwl[loc_n] = nodes["nw"].to_numpy(np.int64)
-    return ids, indptr, ly.astype(np.int32), w, parts, nwl
+    parts[ly] = sy[o]
+    nwl[ly] = nwy[o]
+    parts[loc_n] = gshard
+    nwl[loc_n] = gnw
+    return ids, indptr, ly.astype(np.int32), w[o], parts, nwl
 
 
-def _unit_round(spark, wedges, pdf, pairs, kernel, schema):
-    nodes, ent = _unit_frames(spark, wedges, pdf, pairs)
-    out = nodes.groupBy("unit").cogroup(ent.groupBy("unit")).applyInPandas(kernel, schema)
-    return out.toPandas()
+def _apply(blocks, parts, nw, pairs, kernel):
+    """One round of units: ``(units, nodes, shards, gains)`` concatenated over the pairs."""
+    res = blocks.unit_round(parts, nw, pairs, kernel)
+    units = np.concatenate([np.full(r[1].shape[0], r[0], dtype=np.int64) for r in res] or [_EMPTY])
+    nodes = np.concatenate([r[1] for r in res] or [_EMPTY])
+    shards = np.concatenate([r[2] for r in res] or [_EMPTY])
+    return units, nodes, shards, [r[3] for r in res]
+
+
+def edge_blocks(spark, sg, kind):
+    """:class:`~partition.spark.blocks.EdgeBlocks` of the graph with :func:`int_weights` of ``kind``."""
+    from partition.spark.blocks import EdgeBlocks
+
+    wedges, unit_w = int_weights(spark, sg, kind)
+    return EdgeBlocks(spark, wedges, sg.n, unit_w)
 
 
 def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, stall_fraction=0.0, tol=0.0,
-             max_rounds=None, progress=None):
+             max_rounds=None, progress=None, blocks=None):
     """:func:`partition.refine.fm.refine_fm` with ``schedule="matched"``, units in Spark tasks.
 
     Parameters
@@ -155,6 +127,9 @@ def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, st
         pass after ``max(max_stall, ⌊stall_fraction · L⌋)`` moves without a new
         best; the rounds stop after two in a row that each gain at most
         ``tol`` times the start-of-round cut (``tol = 0``: rule off).
+    progress : callable or None
+    blocks : partition.spark.blocks.EdgeBlocks or None
+        The edges with :func:`int_weights` ``"fm"`` (built and dropped here when ``None``).
 
     Returns
     -------
@@ -167,70 +142,67 @@ def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, st
     """
     k = rule.k
     cap, floor = int(rule.cap), int(rule.floor)
-    wedges, _ = int_weights(spark, sg, "fm")
-    wedges = wedges.select("u", "v", "wi").localCheckpoint()
+    own = blocks is None
+    blocks = edge_blocks(spark, sg, "fm") if own else blocks
     parts = np.asarray(parts, dtype=np.int64).copy()
+    nw = np.asarray(nw, dtype=np.int64)
     settled = np.zeros((k, k), dtype=bool)
-    pairs_now = []
 
-    def kernel(nodes, ent):
-        if nodes.shape[0] == 0:
-            return pd.DataFrame({"node": _EMPTY, "shard": _EMPTY, "unit": _EMPTY, "gain": _EMPTY})
-        u = int(nodes["unit"].iloc[0])
-        a, b = pairs_now[u]
-        ids, indptr, indices, w, lp, lnw = _local(nodes, ent)
-        loc = np.searchsorted(ids, np.sort(nodes["node"].to_numpy(np.int64)))
+    def kernel(unit, gn, ex, ey, w, sy, nwy, gshard, gnw):
+        a, b = pairs_now[unit]
+        if gn.shape[0] == 0:
+            return _EMPTY, _EMPTY, 0
+        ids, indptr, indices, lw, lp, lnw = _local(gn, gshard, gnw, ex, ey, w, sy, nwy)
+        loc = np.searchsorted(ids, gn)
         la = loc[lp[loc] == a]
         lb = loc[lp[loc] == b]
         mov = np.concatenate((la, lb))
         stall = max_stall if max_stall < 0 else max(int(max_stall), int(stall_fraction * mov.shape[0]))
-        new, g = fm_pair(indptr, indices, w, lnw, lp, a, b, mov, cap, cap, floor, floor, max_passes, stall)
-        return pd.DataFrame({"node": ids[mov], "shard": new.astype(np.int64),
-                             "unit": np.full(mov.shape[0], u, dtype=np.int64),
-                             "gain": np.full(mov.shape[0], int(g), dtype=np.int64)})
+        new, g = fm_pair(indptr, indices, lw, lnw, lp, a, b, mov, cap, cap, floor, floor, max_passes, stall)
+        return ids[mov], new, g
 
     low = 0
-    pdf = cm = None
-    for r in range(k if max_rounds is None else int(max_rounds)):
-        describe(spark, f"refine fm: round {r + 1}")
-        if pdf is None:  # the shards changed (or first round): new start-of-round frames and cut matrix
-            pdf = _parts_df(spark, parts, nw).localCheckpoint()
-            cm = cut_matrix(spark, wedges, pdf, k)
-        live = (cm > 0) & ~settled
-        if not live.any():
-            break
-        pairs = [(a, b) for a, b in matched_pairs(np.where(live, cm, 0)) if live[a, b]]
-        pairs_now[:] = pairs
-        res = _unit_round(spark, wedges, pdf, pairs, kernel, "node long, shard long, unit long, gain long")
-        changed = [False] * len(pairs)
-        gains = {}
-        if len(res):
-            gains = res.groupby("unit")["gain"].first().to_dict()
-            nodes = res["node"].to_numpy(np.int64)
-            new = res["shard"].to_numpy(np.int64)
+    cm = None
+    pairs_now = []
+    try:
+        for r in range(k if max_rounds is None else int(max_rounds)):
+            describe(spark, f"refine fm: round {r + 1}")
+            if cm is None:  # the shards changed (or first round): a new start-of-round cut matrix
+                cm = blocks.cut_matrix(parts, k)
+            start_cut = int(cm.sum()) // 2
+            live = (cm > 0) & ~settled
+            if not live.any():
+                break
+            pairs = [(a, b) for a, b in matched_pairs(np.where(live, cm, 0)) if live[a, b]]
+            pairs_now[:] = pairs
+            units, nodes, new, gains = _apply(blocks, parts, nw, pairs, kernel)
+            changed = [False] * len(pairs)
             diff = parts[nodes] != new
-            for u in np.unique(res["unit"].to_numpy(np.int64)[diff]):
+            for u in np.unique(units[diff]):
                 changed[int(u)] = True
             parts[nodes] = new
             if diff.any():
-                pdf = None
-        for (a, b), ch in zip(pairs, changed):
-            if not ch:
-                settled[a, b] = settled[b, a] = True
-        for (a, b), ch in zip(pairs, changed):
-            if ch:
-                settled[[a, b], :] = False
-                settled[:, [a, b]] = False
-        if progress is not None:
-            progress({"stage": f"fm round {r + 1}", "pairs": len(pairs), "changed": int(sum(changed))})
-        cut_now = int(cm.sum()) // 2
-        low = low + 1 if tol > 0 and sum(int(g) for g in gains.values()) <= tol * cut_now else 0
-        if low >= 2:
-            break
+                cm = None
+            for (a, b), ch in zip(pairs, changed):
+                if not ch:
+                    settled[a, b] = settled[b, a] = True
+            for (a, b), ch in zip(pairs, changed):
+                if ch:
+                    settled[[a, b], :] = False
+                    settled[:, [a, b]] = False
+            if progress is not None:
+                progress({"stage": f"fm round {r + 1}", "pairs": len(pairs), "changed": int(sum(changed))})
+            low = low + 1 if tol > 0 and sum(gains) <= tol * start_cut else 0
+            if low >= 2:
+                break
+    finally:
+        if own:
+            blocks.release()
     return parts
 
 
-def spark_swaps(spark, sg, parts, rule, node_weights, max_rounds=20, tol=1e-3, iterations=4, progress=None):
+def spark_swaps(spark, sg, parts, rule, node_weights, max_rounds=20, tol=1e-3, iterations=4, progress=None,
+                blocks=None):
     """:func:`partition.refine.swaps.refine_swaps` with ``schedule="matched"``, units in Spark tasks.
 
     Parameters
@@ -243,6 +215,9 @@ def spark_swaps(spark, sg, parts, rule, node_weights, max_rounds=20, tol=1e-3, i
         ``None`` for unit node weights (the kernel then gets an empty array).
     max_rounds, tol, iterations
         As :func:`partition.refine.swaps.refine_swaps`.
+    progress : callable or None
+    blocks : partition.spark.blocks.EdgeBlocks or None
+        The edges with :func:`int_weights` ``"cut"`` (built and dropped here when ``None``).
 
     Returns
     -------
@@ -255,67 +230,59 @@ def spark_swaps(spark, sg, parts, rule, node_weights, max_rounds=20, tol=1e-3, i
     """
     k = rule.k
     cap, floor = int(rule.cap), int(rule.floor)
-    wedges, unit_w = int_weights(spark, sg, "cut")
-    wedges = wedges.select("u", "v", "wi").localCheckpoint()
+    own = blocks is None
+    blocks = edge_blocks(spark, sg, "cut") if own else blocks
+    unit_w = blocks.unit_w
     parts = np.asarray(parts, dtype=np.int64).copy()
-    nw = np.ones(parts.shape[0], dtype=np.int64) if node_weights is None else node_weights
+    nw = np.ones(parts.shape[0], dtype=np.int64) if node_weights is None else np.asarray(node_weights, np.int64)
     pairs_now = []
 
-    def kernel(nodes, ent):
-        if nodes.shape[0] == 0:
-            return pd.DataFrame({"node": _EMPTY, "shard": _EMPTY, "unit": _EMPTY, "gain": _EMPTY})
-        u = int(nodes["unit"].iloc[0])
-        a, b = pairs_now[u]
-        ids, indptr, indices, w, lp, lnw = _local(nodes, ent)
-        loc = np.searchsorted(ids, np.sort(nodes["node"].to_numpy(np.int64)))
+    def kernel(unit, gn, ex, ey, w, sy, nwy, gshard, gnw):
+        a, b = pairs_now[unit]
+        if gn.shape[0] == 0:
+            return _EMPTY, _EMPTY, 0
+        ids, indptr, indices, lw, lp, lnw = _local(gn, gshard, gnw, ex, ey, w, sy, nwy)
+        loc = np.searchsorted(ids, gn)
         la = loc[lp[loc] == a]
         lb = loc[lp[loc] == b]
         rank = np.zeros(ids.shape[0], dtype=np.int64)
         rank[la] = np.arange(la.shape[0])
         rank[lb] = np.arange(lb.shape[0])
-        moved, target, g = swap_pair(indptr, indices, _EMPTY if unit_w else w, lp.astype(np.int32), rank,
+        moved, target, g = swap_pair(indptr, indices, _EMPTY if unit_w else lw, lp.astype(np.int32), rank,
                                      _EMPTY if node_weights is None else lnw, a, b, la, lb, cap, floor, iterations)
-        return pd.DataFrame({"node": ids[moved], "shard": np.asarray(target, dtype=np.int64),
-                             "unit": np.full(moved.shape[0], u, dtype=np.int64),
-                             "gain": np.full(moved.shape[0], int(g), dtype=np.int64)})
+        return ids[moved], target, g
 
-    pdf = _parts_df(spark, parts, nw).localCheckpoint()
-    cm = cut_matrix(spark, wedges, pdf, k)
-    cut = int(cm.sum()) // 2
-    stale = np.zeros((k, k), dtype=bool)
-    rounds = 0
-    while rounds < max_rounds and cut > 0 and k > 1:
-        describe(spark, f"refine swaps: round {rounds + 1}")
-        mat = cm
-        pairs = matched_pairs(np.where(stale, 0, mat))
-        if not pairs:
-            break
-        pairs_now[:] = pairs
-        res = _unit_round(spark, wedges, pdf, pairs, kernel, "node long, shard long, unit long, gain long")
-        gains = [0] * len(pairs)
-        moved = [0] * len(pairs)
-        if len(res):
-            units = res["unit"].to_numpy(np.int64)
-            g = res.groupby("unit")["gain"].first()
-            for u, val in g.items():
-                gains[int(u)] = int(val)
-            for u, cnt in zip(*np.unique(units, return_counts=True)):
-                moved[int(u)] = int(cnt)
-            parts[res["node"].to_numpy(np.int64)] = res["shard"].to_numpy(np.int64)
-        cut -= sum(gains)
-        rounds += 1
-        for (a, b), mv in zip(pairs, moved):
-            if mv:
-                stale[[a, b], :] = False
-                stale[:, [a, b]] = False
-        for (a, b), g in zip(pairs, gains):
-            if g <= tol * mat[a, b]:
-                stale[a, b] = stale[b, a] = True
-        if progress is not None:
-            progress({"stage": f"swaps round {rounds}", "pairs": len(pairs), "gain": int(sum(gains))})
-        if rounds < max_rounds and cut > 0 and any(moved):  # unchanged shards: same frames, same matrix
-            pdf = _parts_df(spark, parts, nw).localCheckpoint()
-            cm = cut_matrix(spark, wedges, pdf, k)
+    try:
+        cm = blocks.cut_matrix(parts, k)
+        cut = int(cm.sum()) // 2
+        stale = np.zeros((k, k), dtype=bool)
+        rounds = 0
+        while rounds < max_rounds and cut > 0 and k > 1:
+            describe(spark, f"refine swaps: round {rounds + 1}")
+            mat = cm
+            pairs = matched_pairs(np.where(stale, 0, mat))
+            if not pairs:
+                break
+            pairs_now[:] = pairs
+            units, nodes, new, gains = _apply(blocks, parts, nw, pairs, kernel)
+            moved = np.bincount(units, minlength=len(pairs)).tolist()
+            parts[nodes] = new
+            cut -= sum(gains)
+            rounds += 1
+            for (a, b), mv in zip(pairs, moved):
+                if mv:
+                    stale[[a, b], :] = False
+                    stale[:, [a, b]] = False
+            for (a, b), g in zip(pairs, gains):
+                if g <= tol * mat[a, b]:
+                    stale[a, b] = stale[b, a] = True
+            if progress is not None:
+                progress({"stage": f"swaps round {rounds}", "pairs": len(pairs), "gain": int(sum(gains))})
+            if rounds < max_rounds and cut > 0 and any(moved):  # unchanged shards: same matrix
+                cm = blocks.cut_matrix(parts, k)
+    finally:
+        if own:
+            blocks.release()
     return parts
 
 

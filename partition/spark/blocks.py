@@ -1,0 +1,224 @@
+"""The edges as numpy blocks in a cached RDD, for the rounds of pairwise refinement.
+
+Every round of the ``fm`` and ``swaps`` steps reads the same edges under new
+shard labels. As DataFrame rows that costs two joins with the shard table, a
+shuffle of every edge row and an Arrow conversion per round (about ten Spark
+jobs). Here the edges are packed once into numpy blocks (``u``, ``v`` and the
+integer weights, a few million edges per block) kept in Spark's block manager,
+and each round broadcasts the shard array (the driver holds it anyway):
+
+* the shard cut matrix is one job without a shuffle — every task sums its
+  blocks' cut edges into a ``k × k`` array, the driver adds the arrays;
+* a round of shard-pair units is one job with one shuffle — every map task
+  splits its blocks by the unit of the source node's shard (both directions
+  of each edge) and sends one block per unit, so the shuffle moves whole
+  arrays instead of rows; the unit's task concatenates them and runs the kernel.
+
+The kernels see exactly the arrays the row-based path gave them (nodes of the
+unit's two shards in increasing id order, every directed edge leaving them with
+the neighbour's shard and weight), so results do not change.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+__all__ = ["EdgeBlocks", "BLOCK_EDGES"]
+
+BLOCK_EDGES = 1 << 22  # edges per block (int32 ends: 32 MB per block)
+
+
+def _pack(block, unit_w, idtype):
+    def pack(batches):
+        import pandas as pd
+
+        us, vs, ws, size = [], [], [], 0
+
+        def flush():
+            u = np.concatenate(us).astype(idtype)
+            v = np.concatenate(vs).astype(idtype)
+            w = b"" if unit_w else np.concatenate(ws).astype(np.int64).tobytes()
+            return pd.DataFrame({"u": [u.tobytes()], "v": [v.tobytes()], "w": [w]})
+
+        for pdf in batches:
+            us.append(pdf["u"].to_numpy())
+            vs.append(pdf["v"].to_numpy())
+            if not unit_w:
+                ws.append(pdf["wi"].to_numpy())
+            size += len(pdf)
+            if size >= block:
+                yield flush()
+                us, vs, ws, size = [], [], [], 0
+        if size:
+            yield flush()
+
+    return pack
+
+
+class EdgeBlocks:
+    """Undirected edges with integer weights as cached numpy blocks.
+
+    Parameters
+    ----------
+    spark : SparkSession
+    wedges : DataFrame
+        Columns ``u``, ``v``, ``wi`` (integer weights), each edge once.
+    n : int
+        Number of nodes (ids ``0 .. n-1``).
+    unit_w : bool
+        All weights are 1: blocks keep no weight array, and the kernels get
+        ones (``weights`` of :meth:`unit_round`'s kernel is then ``None``).
+    block : int
+        Edges per block.
+    """
+
+    def __init__(self, spark, wedges, n, unit_w, block=BLOCK_EDGES):
+        from pyspark import StorageLevel
+
+        self.spark = spark
+        self.sc = spark.sparkContext
+        self.n = int(n)
+        self.unit_w = bool(unit_w)
+        idtype = np.int32 if self.n < 2**31 else np.int64
+        packed = wedges.select("u", "v", "wi").mapInPandas(
+            _pack(int(block), self.unit_w, idtype), "u binary, v binary, w binary")
+        unit = self.unit_w
+
+        def unpack(row):
+            w = None if unit else np.frombuffer(row["w"], dtype=np.int64)
+            return np.frombuffer(row["u"], dtype=idtype), np.frombuffer(row["v"], dtype=idtype), w
+
+        self.rdd = packed.rdd.map(unpack).persist(StorageLevel.MEMORY_AND_DISK)
+        self.blocks = self.rdd.count()
+
+    def release(self):
+        """Drop the cached blocks."""
+        self.rdd.unpersist()
+
+    def cut_matrix(self, parts, k):
+        """``k × k`` integer cut matrix (symmetric, zero diagonal) of ``parts``.
+
+        Parameters
+        ----------
+        parts : ndarray of int64, shape (n,)
+        k : int
+
+        Returns
+        -------
+        ndarray of int64, shape (k, k)
+        """
+        k = int(k)
+        bp = self.sc.broadcast(np.asarray(parts, dtype=np.int64))
+
+        def task(it):
+            p = bp.value
+            cm = np.zeros(k * k, dtype=np.int64)
+            for u, v, w in it:
+                su, sv = p[u], p[v]
+                m = su != sv
+                idx = su[m] * k + sv[m]
+                if w is None:
+                    cm += np.bincount(idx, minlength=k * k)
+                else:
+                    np.add.at(cm, idx, w[m])
+            yield cm
+
+        try:
+            parts_sum = self.rdd.mapPartitions(task).collect()
+        finally:
+            bp.unpersist()
+        cm = np.sum(parts_sum, axis=0, dtype=np.int64).reshape(k, k) if parts_sum else np.zeros((k, k), np.int64)
+        return cm + cm.T
+
+    def cut_total(self, parts):
+        """Total weight of the cut edges of ``parts``."""
+        parts = np.asarray(parts, dtype=np.int64)
+        k = int(parts.max()) + 1 if parts.shape[0] else 1
+        return int(self.cut_matrix(parts, k).sum()) // 2
+
+    def unit_round(self, parts, node_weights, pairs, kernel):
+        """Run ``kernel`` on every shard pair of ``pairs`` in Spark tasks.
+
+        Parameters
+        ----------
+        parts : ndarray of int64, shape (n,)
+        node_weights : ndarray of int64, shape (n,)
+        pairs : list of (int, int)
+            Disjoint shard pairs; pair ``i`` is unit ``i``.
+        kernel : callable
+            ``kernel(unit, nodes, x, y, w, sy, nwy, parts_of_nodes, nw_of_nodes)``
+            with ``nodes`` the ids of the pair's shards in increasing order and
+            ``x → y`` every directed edge leaving them (``w`` its weight, ``sy``
+            and ``nwy`` the shard and weight of ``y``); returns
+            ``(nodes, shards, gain)``.
+
+        Returns
+        -------
+        list of (unit, nodes, shards, gain)
+            One entry per pair (pairs without edges run on the driver).
+        """
+        if not pairs:
+            return []
+        k = int(max(max(a, b) for a, b in pairs)) + 1
+        k = max(k, int(parts.max()) + 1)
+        unit_of = np.full(k, -1, dtype=np.int64)
+        for i, (a, b) in enumerate(pairs):
+            unit_of[a] = unit_of[b] = i
+        bp = self.sc.broadcast(np.asarray(parts, dtype=np.int64))
+        bw = self.sc.broadcast(np.asarray(node_weights, dtype=np.int64))
+        n_units = len(pairs)
+        pairs = [(int(a), int(b)) for a, b in pairs]
+
+        def split(it):
+            p = bp.value
+            for u, v, w in it:
+                for x, y in ((u, v), (v, u)):
+                    ux = unit_of[p[x]]
+                    keep = np.flatnonzero(ux >= 0)
+                    if keep.shape[0] == 0:
+                        continue
+                    o = keep[np.argsort(ux[keep], kind="stable")]
+                    uo = ux[o]
+                    starts = np.flatnonzero(np.r_[True, uo[1:] != uo[:-1]])
+                    ends = np.r_[starts[1:], uo.shape[0]]
+                    for s, e in zip(starts, ends):
+                        sel = o[s:e]
+                        yield int(uo[s]), (x[sel], y[sel], None if w is None else w[sel])
+
+        def run(it):
+            p, nw = bp.value, bw.value
+            got = {}
+            for unit, chunk in it:
+                got.setdefault(unit, []).append(chunk)
+            for unit, chunks in sorted(got.items()):
+                yield _call(kernel, unit, pairs[unit], p, nw, chunks)
+
+        try:
+            res = (self.rdd.mapPartitions(split).partitionBy(n_units, lambda unit: unit)
+                   .mapPartitions(run).collect())
+        finally:
+            bp.unpersist()
+            bw.unpersist()
+        seen = {r[0] for r in res}
+        p = np.asarray(parts, dtype=np.int64)
+        nw = np.asarray(node_weights, dtype=np.int64)
+        for unit in range(n_units):
+            if unit not in seen:
+                res.append(_call(kernel, unit, pairs[unit], p, nw, []))
+        return sorted(res, key=lambda r: r[0])
+
+
+def _call(kernel, unit, pair, p, nw, chunks):
+    a, b = pair
+    nodes = np.flatnonzero((p == a) | (p == b)).astype(np.int64)
+    if chunks:
+        x = np.concatenate([c[0] for c in chunks]).astype(np.int64)
+        y = np.concatenate([c[1] for c in chunks]).astype(np.int64)
+        w = None if chunks[0][2] is None else np.concatenate([c[2] for c in chunks]).astype(np.int64)
+    else:
+        x = y = np.empty(0, dtype=np.int64)
+        w = None
+    if w is None:
+        w = np.ones(x.shape[0], dtype=np.int64)
+    out_nodes, out_shards, gain = kernel(unit, nodes, x, y, w, p[y], nw[y], p[nodes], nw[nodes])
+    return unit, np.asarray(out_nodes, dtype=np.int64), np.asarray(out_shards, dtype=np.int64), int(gain)
