@@ -228,7 +228,40 @@ def test_bad_line_names_file_and_line(spark, tmp_path):
     p.write_text("# header\n1 2\n2 3\n4\n")
     with pytest.raises(InputError) as err:
         read_graph_df(spark, str(p))
-    assert "bad.txt" in str(err.value) and "4" in str(err.value)
+    assert "bad.txt" in str(err.value) and err.value.line == 4
+
+
+def test_bad_line_number_exact_when_the_file_spans_many_splits(spark, tmp_path):
+    # ~60 kB text read in 4 kB splits: the faulty line sits in a late split, after comments
+    from partition.spark.io import read_graph_df
+
+    lines = ["# a made-up library loan log"] + [f"{i} {i + 1} 2" if i % 50 else f"# block {i}" for i in range(6000)]
+    bad_weight, short = 4321, 5555  # 0-based indices into lines
+    lines[bad_weight] = "17 18 -3"
+    big = tmp_path / "loans.txt"
+    big.write_text("\n".join(lines) + "\n")
+    folder = tmp_path / "parts"
+    folder.mkdir()
+    (folder / "a.txt").write_text("1 2\n2 3\n")
+    (folder / "b.txt").write_text("# second file\n3 4\n5\n")
+    old = spark.conf.get("spark.sql.files.maxPartitionBytes")
+    spark.conf.set("spark.sql.files.maxPartitionBytes", "4096")
+    try:
+        assert spark.read.text(str(big)).rdd.getNumPartitions() > 5
+        with pytest.raises(InputError) as err:
+            read_graph_df(spark, str(big), weighted=True)
+        assert err.value.line == bad_weight + 1 and "weight" in str(err.value)
+        lines[bad_weight] = "17 18 3"
+        lines[short] = "99"
+        big.write_text("\n".join(lines) + "\n")
+        with pytest.raises(InputError) as err:
+            read_graph_df(spark, str(big))
+        assert err.value.line == short + 1
+        with pytest.raises(InputError) as err:
+            read_graph_df(spark, str(folder))
+        assert err.value.path.endswith("b.txt") and err.value.line == 3
+    finally:
+        spark.conf.set("spark.sql.files.maxPartitionBytes", old)
 
 
 def test_fits_driver_rule():

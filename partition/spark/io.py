@@ -66,23 +66,77 @@ def detect_format(path, fmt="auto"):
     return by_name(p)
 
 
-def _data_lines(spark, path):
-    """Non-blank, non-comment lines of a text file as (``line`` text, 1-based ``lineno``)."""
+class _Source:
+    """A file Spark reads, with rows numbered cheaply and line numbers found on demand.
+
+    Rows carry ``key`` = ``monotonically_increasing_id()`` taken at the scan
+    (partition index in the upper bits, row within the partition below): it
+    costs nothing in the JVM and orders rows as the file does, since Spark keeps
+    a file's splits in file order. Only when a row is at fault does
+    :meth:`error` turn its key into a 1-based line (text) or row (Parquet)
+    number of its file: one aggregation counts the rows of every (partition,
+    file) and the rows of the file's earlier partitions give the offset.
+    """
+
+    def __init__(self, spark, path, kind="text"):
+        self.spark, self.path, self.kind = spark, str(path), kind
+
+    def read(self):
+        from pyspark.sql import functions as F
+
+        try:
+            if self.kind == "parquet":
+                df = self.spark.read.parquet(self.path)
+            else:
+                df = self.spark.read.text(self.path).withColumnRenamed("value", "line")
+        except Exception as exc:  # noqa: BLE001
+            raise InputError(self.path, f"cannot read: {exc}".splitlines()[0]) from exc
+        return df.withColumn("key", F.monotonically_increasing_id())
+
+    def locate(self, key):
+        """``(file, number)`` of the row with ``key``: the file Spark read it from and its 1-based number."""
+        from pyspark.sql import functions as F
+
+        key = int(key)
+        df = self.read().select("key", F.input_file_name().alias("file"))
+        groups = (df.groupBy(F.shiftright("key", 33).alias("pid"), "file")
+                    .agg(F.count("*").alias("n"), F.min("key").alias("first")).collect())
+        pid = key >> 33
+        for g in groups:
+            if g["pid"] == pid and g["first"] <= key < g["first"] + g["n"]:
+                before = sum(h["n"] for h in groups if h["file"] == g["file"] and h["pid"] < pid)
+                return g["file"], before + key - g["first"] + 1
+        return None, None
+
+    def error(self, message, key):
+        """:class:`InputError` naming the file and line of the row with ``key``."""
+        file, line = self.locate(key)
+        where = self.path
+        if file is not None and os.path.isdir(self.path):
+            where = file[len("file:"):] if file.startswith("file:") else file
+        return InputError(where, message, line)
+
+
+def _first(df, col="key"):
+    """The smallest ``col`` of ``df`` or ``None`` (the first faulty row in file order)."""
     from pyspark.sql import functions as F
 
-    sc = spark.sparkContext
-    try:
-        rdd = sc.textFile(str(path)).zipWithIndex()
-    except Exception as exc:  # noqa: BLE001
-        raise InputError(path, f"cannot read: {exc}") from exc
-    df = spark.createDataFrame(rdd, "line string, idx long")
+    got = df.agg(F.min(col).alias("x")).collect()[0]["x"]
+    return None if got is None else int(got)
+
+
+def _data_lines(src):
+    """Non-blank, non-comment lines of a text source: ``line`` (text) and ``key`` (see :class:`_Source`)."""
+    from pyspark.sql import functions as F
+
+    df = src.read()
     t = F.trim(F.col("line"))
     df = df.filter((F.length(t) > 0) & ~F.substring(t, 1, 1).isin("#", "%"))
-    return df.select(F.regexp_replace("line", "\r$", "").alias("line"), (F.col("idx") + 1).alias("lineno"))
+    return df.select(F.regexp_replace("line", "\r$", "").alias("line"), "key")
 
 
-def _csv_fields(spark, path, delim, header, wanted, weighted):
-    """CSV/TSV rows as ``s``, ``d`` (strings), ``line`` and ``w`` (double) when weighted.
+def _csv_fields(src, delim, header, wanted, weighted):
+    """CSV/TSV rows as ``s``, ``d`` (strings), ``key`` and ``w`` (double) when weighted.
 
     Follows :func:`partition.edgelist.read_graph` on CSV/TSV: comment and blank
     lines skipped, the first remaining line is the header (unless ``header`` is
@@ -98,64 +152,57 @@ def _csv_fields(spark, path, delim, header, wanted, weighted):
 
     from partition.edgelist import _pick_columns
 
-    lines = _data_lines(spark, path)
-    first = lines.orderBy("lineno").limit(1).collect()
+    path = src.path
+    lines = _data_lines(src)
+    first = lines.orderBy("key").limit(1).collect()
     if not first:
         raise InputError(path, "the file is empty")
     head = next(csv.reader(io.StringIO(first[0]["line"]), delimiter=delim))
     width = len(head)
     names = [h.strip() for h in head] if header else [str(i + 1) for i in range(width)]
     chosen = _pick_columns(path, names, wanted, weighted, 3)
-    body = lines.filter(F.col("lineno") != first[0]["lineno"]) if header else lines
+    body = lines.filter(F.col("key") != first[0]["key"]) if header else lines
     plain = ~F.col("line").contains('"')
     bad = body.filter(plain & (F.size(F.split("line", re.escape(delim))) != width))
-    got = bad.select("lineno").orderBy("lineno").limit(1).collect()
-    if got:
-        raise InputError(path, f"malformed row: expected {width} fields", got[0]["lineno"])
+    got = _first(bad)
+    if got is not None:
+        raise src.error(f"malformed row: expected {width} fields", got)
     schema = ", ".join(f"`c{i}` string" for i in range(width))
-    parsed = body.select(F.from_csv("line", schema, {"sep": delim}).alias("r"), "lineno")
+    parsed = body.select(F.from_csv("line", schema, {"sep": delim}).alias("r"), "key")
     idx = [names.index(c) for c in chosen]
-    cols = [F.col(f"r.c{idx[0]}").alias("s"), F.col(f"r.c{idx[1]}").alias("d"), F.col("lineno").alias("line")]
+    cols = [F.col(f"r.c{idx[0]}").alias("s"), F.col(f"r.c{idx[1]}").alias("d"), "key"]
     if weighted:
         cols.append(F.expr(f"try_cast(r.c{idx[2]} as double)").alias("w"))
     raw = parsed.select(*cols)
     for c, name in (("s", chosen[0]), ("d", chosen[1])):
-        empty = raw.filter(F.col(c).isNull() | (F.col(c) == "")).select("line").orderBy("line").limit(1).collect()
-        if empty:
-            raise InputError(path, f"empty value in column {name!r}", empty[0]["line"])
+        empty = _first(raw.filter(F.col(c).isNull() | (F.col(c) == "")))
+        if empty is not None:
+            raise src.error(f"empty value in column {name!r}", empty)
     return raw
 
 
-def _text_fields(spark, path, need):
-    """Data lines of a text file as (fields array, 1-based line number)."""
+def _text_fields(src, need):
+    """Data lines of a text source as ``f`` (fields array) and ``key`` (see :class:`_Source`)."""
     from pyspark.sql import functions as F
 
-    sc = spark.sparkContext
-    try:
-        rdd = sc.textFile(str(path)).zipWithIndex()
-    except Exception as exc:  # noqa: BLE001
-        raise InputError(path, f"cannot read: {exc}") from exc
-    df = spark.createDataFrame(rdd, "line string, idx long")
-    df = df.withColumn("t", F.trim(F.col("line")))
-    df = df.filter((F.length("t") > 0) & ~F.substring("t", 1, 1).isin("#", "%"))
-    df = df.select(F.split("t", r"[\s,]+").alias("f"), (F.col("idx") + 1).alias("line"))
-    bad = df.filter(F.size("f") < need).select("line").orderBy("line").limit(1).collect()
-    if bad:
-        raise InputError(path, f"expected at least {need} fields", bad[0]["line"])
+    df = _data_lines(src).select(F.split(F.trim("line"), r"[\s,]+").alias("f"), "key")
+    bad = _first(df.filter(F.size("f") < need))
+    if bad is not None:
+        raise src.error(f"expected at least {need} fields", bad)
     return df
 
 
-def _weights_ok(df, col, path, what="weight", integer=False):
+def _weights_ok(src, df, col, what="weight", integer=False):
     from pyspark.sql import functions as F
 
     v = F.col(col)
     cond = v.isNull() | F.isnan(v) | (v < 0) | (v == float("inf"))
     if integer:
         cond = cond | (v != F.floor(v))
-    bad = df.filter(cond).select("line").orderBy("line").limit(1).collect()
-    if bad:
+    bad = _first(df.filter(cond))
+    if bad is not None:
         kind = "a non-negative integer" if integer else "a finite number >= 0"
-        raise InputError(path, f"{what} must be {kind}", bad[0]["line"])
+        raise src.error(f"{what} must be {kind}", bad)
 
 
 def read_graph_df(spark, path, fmt="auto", weighted=False, source_column=None, target_column=None,
@@ -197,18 +244,20 @@ def read_graph_df(spark, path, fmt="auto", weighted=False, source_column=None, t
         weighted = True
     fmt = detect_format(path, fmt)
     if fmt == "text":
-        df = _text_fields(spark, path, 3 if weighted else 2)
-        cols = [F.col("f")[0].alias("s"), F.col("f")[1].alias("d"), "line"]
+        src = _Source(spark, path)
+        df = _text_fields(src, 3 if weighted else 2)
+        cols = [F.col("f")[0].alias("s"), F.col("f")[1].alias("d"), "key"]
         if weighted:
             cols.append(F.expr("try_cast(f[2] as double)").alias("w"))
         raw = df.select(*cols)
     elif fmt in ("csv", "tsv"):
         delim = delimiter or ("," if fmt == "csv" else "\t")
-        raw = _csv_fields(spark, path, delim, header is not False, [source_column, target_column, weight_column],
-                          weighted)
+        src = _Source(spark, path)
+        raw = _csv_fields(src, delim, header is not False, [source_column, target_column, weight_column], weighted)
     else:
-        pq = spark.read.parquet(str(path))
-        names = pq.columns
+        src = _Source(spark, path, "parquet")
+        pq = src.read()
+        names = [c for c in pq.columns if c != "key"]
         need = 3 if weighted else 2
         if len(names) < need and (source_column is None or target_column is None):
             raise InputError(path, f"expected at least {need} columns, found {len(names)}")
@@ -218,23 +267,23 @@ def read_graph_df(spark, path, fmt="auto", weighted=False, source_column=None, t
         for c in chosen:
             if c not in names:
                 raise InputError(path, f"no column named {c!r} (columns: {', '.join(names)})")
-        pq = pq.withColumn("line", F.monotonically_increasing_id() + 1)
-        cols = [F.col(chosen[0]).cast("string").alias("s"), F.col(chosen[1]).cast("string").alias("d"), "line"]
+        cols = [F.col(chosen[0]).cast("string").alias("s"), F.col(chosen[1]).cast("string").alias("d"), "key"]
         if weighted:
             cols.append(F.col(chosen[2]).cast("double").alias("w"))
         raw = pq.select(*cols)
-        nulls = raw.filter(F.col("s").isNull() | F.col("d").isNull()).limit(1).collect()
-        if nulls:
-            raise InputError(path, "null node id", nulls[0]["line"])
+        nulls = _first(raw.filter(F.col("s").isNull() | F.col("d").isNull()))
+        if nulls is not None:
+            raise src.error("null node id", nulls)
     if weighted:
-        _weights_ok(raw, "w", path)
-    raw = raw.localCheckpoint()
+        _weights_ok(src, raw, "w")
+    raw = raw.drop("key").localCheckpoint()
 
     nw = None
     if node_weights is not None:
-        nwf = _text_fields(spark, node_weights, 2)
-        nw = nwf.select(F.col("f")[0].alias("s"), F.expr("try_cast(f[1] as double)").alias("wt"), "line")
-        _weights_ok(nw, "wt", node_weights, "node weight", integer=True)
+        nws = _Source(spark, node_weights)
+        nwf = _text_fields(nws, 2)
+        nw = nwf.select(F.col("f")[0].alias("s"), F.expr("try_cast(f[1] as double)").alias("wt"), "key")
+        _weights_ok(nws, nw, "wt", "node weight", integer=True)
         nw = nw.localCheckpoint()
 
     id_cols = [raw.select(F.col("s").alias("id")), raw.select(F.col("d").alias("id"))]
@@ -270,20 +319,17 @@ def read_graph_df(spark, path, fmt="auto", weighted=False, source_column=None, t
 
     nwdf = None
     if nw is not None:
-        nwdf = nw.select(conv("s").alias("id"), F.col("wt").cast("long").alias("weight"), "line")
+        nwdf = nw.select(conv("s").alias("id"), F.col("wt").cast("long").alias("weight"), "key")
         nwdf = nodes.join(nwdf, "id", "left")
         missing = nwdf.filter(F.col("weight").isNull()).select("id").limit(5).collect()
         if missing:
             raise InputError(node_weights, f"node(s) of the edge list have no weight in the node-weights file "
                                            f"(first: {', '.join(str(r['id']) for r in missing)})")
         if not allow_isolated:
-            deg = edges.select(F.col("u").alias("node")).unionByName(edges.select(F.col("v").alias("node")))
             ends = raw.select(conv("s").alias("id")).unionByName(raw.select(conv("d").alias("id"))).distinct()
-            extra = nwdf.join(ends, "id", "left_anti").select("id", "line").orderBy("line").limit(1).collect()
-            del deg
+            extra = nwdf.join(ends, "id", "left_anti").select("id", "key").orderBy("key").limit(1).collect()
             if extra:
-                raise InputError(node_weights, f"unknown node {extra[0]['id']!r} (not in the edge list)",
-                                 extra[0]["line"])
+                raise nws.error(f"unknown node {extra[0]['id']!r} (not in the edge list)", extra[0]["key"])
         nwdf = nwdf.groupBy("node").agg(F.sum("weight").alias("weight")).localCheckpoint()
     return SparkGraph(edges=edges, nodes=nodes, n=int(n), m=int(m), weighted=bool(weighted),
                       node_weights=nwdf, id_kind=id_kind, source=str(path))
