@@ -130,6 +130,17 @@ def test_affinity_and_hierarchy_match_memory(spark, mixed_graph, tmp_path):
     ref = edge_affinity(g)
     up = g.rows() < g.indices
     assert np.array_equal(got["aff"], ref[up])
+    # many triangles and hubs (networkx's powerlaw_cluster_graph, Holme & Kim 2002): 7 colours, 35 listing tasks
+    import networkx as nx
+
+    G = nx.powerlaw_cluster_graph(300, 5, 0.5, seed=2)
+    tri = _write(tmp_path / "tri.txt", *zip(*G.edges()))
+    g2, sg2 = read_graph(tri), read_graph_df(spark, tri)
+    up2 = g2.rows() < g2.indices
+    for method in ("jaccard", "ppr"):
+        split = to_numpy(edge_affinity_df(sg2, method, hub_cap=20, task_edges=300), ["u", "v", "aff"],
+                         sort=["u", "v"])
+        assert np.array_equal(split["aff"], edge_affinity(g2, method, hub_cap=20)[up2])
     # collect_edges=0: every round runs as Spark jobs (pointer jumping, contraction)
     h = build_hierarchy_df(spark, aff, sg.n, seed=4, work=tmp_path, collect_edges=0)
     hr = build_hierarchy(g, ref, seed=4)

@@ -1,12 +1,11 @@
 """Edge affinity on Spark: the fixed-point integers of :mod:`partition.affinity`, bit for bit.
 
-Common neighbours come from a degree-oriented wedge join: every edge is
-oriented from the lower to the higher ``(degree, id)`` rank, pairs of
-out-neighbours of each vertex are joined with the edge table, and each
-triangle is so found once, from its lowest-ranked vertex (Chiba & Nishizeki,
-SIAM J. Comput. 1985). Each triangle credits every one of its edges with the
-opposite vertex, unless that vertex's degree exceeds ``hub_cap`` — the same
-cap as the in-memory pass. The counts and the integer wedge sums
+Common neighbours come from triangle listing in colour-triple subproblems
+(:mod:`partition.spark.triangles`): each task lists the triangles of its
+subgraph once each, from the lowest ``(degree, id)`` vertex (Chiba &
+Nishizeki, SIAM J. Comput. 1985), and each triangle credits every one of its
+edges with the opposite vertex, unless that vertex's degree exceeds
+``hub_cap`` — the same cap as the in-memory pass. The counts and the integer wedge sums
 (``Σ floor(2**32 / d_w)``, rule 11 of :mod:`partition.rules`) are exact
 integers, and the final fixed-point value is computed inside ``mapInPandas``
 by the same :mod:`partition.rules` / numpy expressions as the in-memory code,
@@ -20,6 +19,7 @@ import numpy as np
 from partition.affinity import DEFAULT_HUB_CAP, METHODS
 from partition.errors import ParameterError
 from partition.rules import AFFINITY_SCALE, WEDGE_BITS, quantise, quantise_ratio
+from partition.spark.triangles import TASK_EDGES, colour_count, triangle_credits_df
 
 __all__ = ["degrees", "common_neighbours_df", "edge_affinity_df"]
 
@@ -32,7 +32,7 @@ def degrees(edges):
     return ends.groupBy("node").agg(F.count(F.lit(1)).alias("deg"))
 
 
-def common_neighbours_df(edges, hub_cap=DEFAULT_HUB_CAP):
+def common_neighbours_df(edges, hub_cap=DEFAULT_HUB_CAP, m=None, task_edges=TASK_EDGES):
     """Per edge ``(u, v)``: hub-capped common-neighbour count ``c`` and wedge sum ``s``, plus degrees.
 
     Parameters
@@ -40,6 +40,10 @@ def common_neighbours_df(edges, hub_cap=DEFAULT_HUB_CAP):
     edges : DataFrame
         ``u < v`` (long), each undirected edge once.
     hub_cap : int
+    m : int or None
+        Number of edges (counted when ``None``).
+    task_edges : int
+        Edges one triangle-listing task may hold (:func:`partition.spark.triangles.colour_count`).
 
     Returns
     -------
@@ -56,24 +60,8 @@ def common_neighbours_df(edges, hub_cap=DEFAULT_HUB_CAP):
     deg = degrees(edges)
     e = (edges.select("u", "v")
          .join(deg.select(F.col("node").alias("u"), F.col("deg").alias("du")), "u")
-         .join(deg.select(F.col("node").alias("v"), F.col("deg").alias("dv")), "v"))
-    # orientation of partition.affinity.common_neighbours: u -> v when (d_u, u) < (d_v, v)
-    fwd = F.col("dv") >= F.col("du")  # u < v always
-    o = e.select(F.when(fwd, F.col("u")).otherwise(F.col("v")).alias("x"),
-                 F.when(fwd, F.col("v")).otherwise(F.col("u")).alias("y"),
-                 F.when(fwd, F.col("du")).otherwise(F.col("dv")).alias("dx"),
-                 F.when(fwd, F.col("dv")).otherwise(F.col("du")).alias("dy"))
-    o2 = o.select("x", F.col("y").alias("z"), F.col("dy").alias("dz"))
-    wedges = o.join(o2, "x").filter(F.col("y") < F.col("z"))
-    tri = wedges.join(edges.select(F.col("u").alias("y"), F.col("v").alias("z")), ["y", "z"])
-    credit = tri.select(F.explode(F.array(
-        F.struct(F.least("x", "y").alias("a"), F.greatest("x", "y").alias("b"), F.col("z").alias("g"), F.col("dz").alias("dg")),
-        F.struct(F.least("x", "z").alias("a"), F.greatest("x", "z").alias("b"), F.col("y").alias("g"), F.col("dy").alias("dg")),
-        F.struct(F.col("y").alias("a"), F.col("z").alias("b"), F.col("x").alias("g"), F.col("dx").alias("dg")),
-    )).alias("t")).select("t.*").filter(F.col("dg") <= F.lit(int(hub_cap)))
-    agg = credit.groupBy(F.col("a").alias("u"), F.col("b").alias("v")).agg(
-        F.count(F.lit(1)).alias("c"),
-        F.sum(F.expr(f"{1 << WEDGE_BITS} div dg")).alias("s"))
+         .join(deg.select(F.col("node").alias("v"), F.col("deg").alias("dv")), "v")).localCheckpoint()
+    agg = triangle_credits_df(e, int(hub_cap), colour_count(m if m is not None else e.count(), task_edges))
     out = e.join(agg, ["u", "v"], "left").select(
         "u", "v", F.col("du").cast("long"), F.col("dv").cast("long"),
         F.coalesce("c", F.lit(0)).cast("long").alias("c"), F.coalesce("s", F.lit(0)).cast("long").alias("s"))
@@ -98,7 +86,7 @@ def _value_fn(method, alpha):
     return fn
 
 
-def edge_affinity_df(sg, method="jaccard", alpha=0.15, steps=2, hub_cap=DEFAULT_HUB_CAP):
+def edge_affinity_df(sg, method="jaccard", alpha=0.15, steps=2, hub_cap=DEFAULT_HUB_CAP, task_edges=TASK_EDGES):
     """Fixed-point affinity of every edge, as :func:`partition.affinity.edge_affinity` computes it.
 
     Parameters
@@ -110,6 +98,8 @@ def edge_affinity_df(sg, method="jaccard", alpha=0.15, steps=2, hub_cap=DEFAULT_
     steps : int
         1 or 2 (``ppr``).
     hub_cap : int
+    task_edges : int
+        Edges one triangle-listing task may hold (:mod:`partition.spark.triangles`).
 
     Returns
     -------
@@ -149,7 +139,7 @@ def edge_affinity_df(sg, method="jaccard", alpha=0.15, steps=2, hub_cap=DEFAULT_
                 yield pdf[["u", "v"]].assign(aff=quantise(pdf["w"].to_numpy(np.float64) / float(top)))
 
         return edges.select("u", "v", "w").mapInPandas(scale, "u long, v long, aff long")
-    cn = common_neighbours_df(edges, int(hub_cap))
+    cn = common_neighbours_df(edges, int(hub_cap), m=sg.m, task_edges=int(task_edges))
     if method == "ppr" and steps == 1:
         cn = cn.withColumn("s", F.lit(0).cast("long"))
     return cn.mapInPandas(_value_fn(method, float(alpha)), "u long, v long, aff long")
