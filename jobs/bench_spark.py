@@ -8,7 +8,8 @@ In one Spark session (local[2] unless ``--master``):
    R-MAT graph (Chakrabarti, Zhan & Faloutsos, SDM 2004; ``--scale``, default
    16, edge factor 16), with per-stage seconds, the Spark jobs each stage
    started (job ids of the session's job group before and after, from the
-   status tracker) and the stage time as a multiple of the floor;
+   status tracker), the stage time as a multiple of the floor and the peak
+   resident memory of the whole process tree (sampled with psutil);
 3. with ``--star N``: skew — one hub with N leaves (default 1,000,000) plus a
    50-clique hanging off it, partitioned in distributed mode (k = 8); prints
    the stage times, whether the shards equal the in-memory engine's, and the
@@ -72,8 +73,9 @@ def bench_rmat(spark, args, work):
         print("  " + str(row), file=sys.stderr, flush=True)
 
     t = time.perf_counter()
-    rep = run_spark(str(path), args.k, 0.0, args.seed, mode="distributed", work_dir=Path(work) / "run",
-                    output=Path(work) / "out", progress=progress, spark=spark)
+    with TreePeak() as mem:
+        rep = run_spark(str(path), args.k, 0.0, args.seed, mode="distributed", work_dir=Path(work) / "run",
+                        output=Path(work) / "out", progress=progress, spark=spark)
     total = time.perf_counter() - t
     print(f"\nR-MAT scale {args.scale}: n = {rep['graph']['nodes']}, m = {rep['graph']['edges']}, k = {args.k}, "
           f"cut fraction {rep['cut_fraction']}, balanced {rep['balance']['balanced']}")
@@ -82,6 +84,8 @@ def bench_rmat(spark, args, work):
     for name, sec, jobs in rows:
         print(f"{name:<34} {sec:>9.2f} {jobs:>6} {sec / floor:>8.1f}")
     print(f"{'whole job (wall)':<34} {total:>9.2f} {'':>6} {total / floor:>8.1f}")
+    print(f"peak resident memory of the process tree (driver, Spark JVM, Python workers): {mem.peak / 2**30:.2f} GiB "
+          f"(JVM alone {mem.peak_jvm / 2**30:.2f} GiB)")
 
 
 def _peak_rss_mb(pid="self"):
@@ -93,6 +97,42 @@ def _peak_rss_mb(pid="self"):
     except OSError:
         return None
     return None
+
+
+class TreePeak:
+    """Peak resident memory of this process and all its descendants (Spark JVM, Python workers), sampled twice a second."""
+
+    def __init__(self):
+        import threading
+
+        self.peak = self.peak_jvm = 0
+        self._stop = threading.Event()
+        self._thread = threading.Thread(target=self._run, daemon=True)
+
+    def _run(self):
+        import psutil
+
+        me = psutil.Process()
+        while not self._stop.is_set():
+            total = 0
+            for p in [me] + me.children(recursive=True):
+                try:
+                    rss = p.memory_info().rss
+                    total += rss
+                    if p.name().startswith("java"):
+                        self.peak_jvm = max(self.peak_jvm, rss)
+                except psutil.Error:
+                    pass
+            self.peak = max(self.peak, total)
+            self._stop.wait(0.5)
+
+    def __enter__(self):
+        self._thread.start()
+        return self
+
+    def __exit__(self, *exc):
+        self._stop.set()
+        self._thread.join()
 
 
 def _jvm_pid():
