@@ -95,6 +95,28 @@ class EdgeBlocks:
         """Drop the cached blocks."""
         self.rdd.unpersist()
 
+    def sum_over(self, fn, length, /, **arrays):
+        """``Σ`` over the blocks of ``fn(u, v, w, arrays, acc)``, which adds into ``acc`` (int64, ``length``).
+
+        ``arrays`` are broadcast once for the job; ``w`` is ``None`` for unit
+        weights. One Spark job without a shuffle; the driver adds the tasks' arrays.
+        """
+        size = int(length)
+        bc = self.sc.broadcast(arrays)
+
+        def task(it):
+            a = bc.value
+            acc = np.zeros(size, dtype=np.int64)
+            for u, v, w in it:
+                fn(u, v, w, a, acc)
+            yield acc
+
+        try:
+            got = self.rdd.mapPartitions(task).collect()
+        finally:
+            bc.unpersist()
+        return np.sum(got, axis=0, dtype=np.int64) if got else np.zeros(size, dtype=np.int64)
+
     def cut_matrix(self, parts, k):
         """``k × k`` integer cut matrix (symmetric, zero diagonal) of ``parts``.
 
@@ -108,26 +130,7 @@ class EdgeBlocks:
         ndarray of int64, shape (k, k)
         """
         k = int(k)
-        bp = self.sc.broadcast(np.asarray(parts, dtype=np.int64))
-
-        def task(it):
-            p = bp.value
-            cm = np.zeros(k * k, dtype=np.int64)
-            for u, v, w in it:
-                su, sv = p[u], p[v]
-                m = su != sv
-                idx = su[m] * k + sv[m]
-                if w is None:
-                    cm += np.bincount(idx, minlength=k * k)
-                else:
-                    np.add.at(cm, idx, w[m])
-            yield cm
-
-        try:
-            parts_sum = self.rdd.mapPartitions(task).collect()
-        finally:
-            bp.unpersist()
-        cm = np.sum(parts_sum, axis=0, dtype=np.int64).reshape(k, k) if parts_sum else np.zeros((k, k), np.int64)
+        cm = self.sum_over(_cut_cells, k * k, parts=np.asarray(parts, dtype=np.int64), k=k).reshape(k, k)
         return cm + cm.T
 
     def cut_total(self, parts):
@@ -135,6 +138,48 @@ class EdgeBlocks:
         parts = np.asarray(parts, dtype=np.int64)
         k = int(parts.max()) + 1 if parts.shape[0] else 1
         return int(self.cut_matrix(parts, k).sum()) // 2
+
+    def route(self, split, run, n_units, /, **arrays):
+        """One job with one shuffle: ``split`` sends edge chunks to units, ``run`` solves each unit.
+
+        Parameters
+        ----------
+        split : callable
+            ``split(u, v, w, arrays)`` yields ``(unit, chunk)`` for one block.
+        run : callable
+            ``run(unit, chunks, arrays)`` returns the unit's result.
+        n_units : int
+        **arrays
+            Broadcast once for the job.
+
+        Returns
+        -------
+        dict
+            unit → result, for the units that received at least one chunk.
+        """
+        if n_units <= 0:
+            return {}
+        bc = self.sc.broadcast(arrays)
+
+        def send(it):
+            a = bc.value
+            for u, v, w in it:
+                yield from split(u, v, w, a)
+
+        def solve(it):
+            a = bc.value
+            got = {}
+            for unit, chunk in it:
+                got.setdefault(unit, []).append(chunk)
+            for unit, chunks in sorted(got.items()):
+                yield unit, run(unit, chunks, a)
+
+        try:
+            res = (self.rdd.mapPartitions(send).partitionBy(int(n_units), lambda unit: unit)
+                   .mapPartitions(solve).collect())
+        finally:
+            bc.unpersist()
+        return dict(res)
 
     def unit_round(self, parts, node_weights, pairs, kernel):
         """Run ``kernel`` on every shard pair of ``pairs`` in Spark tasks.
@@ -159,53 +204,53 @@ class EdgeBlocks:
         """
         if not pairs:
             return []
-        k = int(max(max(a, b) for a, b in pairs)) + 1
-        k = max(k, int(parts.max()) + 1)
+        pairs = [(int(a), int(b)) for a, b in pairs]
+        k = max(max(max(a, b) for a, b in pairs), int(parts.max())) + 1
         unit_of = np.full(k, -1, dtype=np.int64)
         for i, (a, b) in enumerate(pairs):
             unit_of[a] = unit_of[b] = i
-        bp = self.sc.broadcast(np.asarray(parts, dtype=np.int64))
-        bw = self.sc.broadcast(np.asarray(node_weights, dtype=np.int64))
-        n_units = len(pairs)
-        pairs = [(int(a), int(b)) for a, b in pairs]
-
-        def split(it):
-            p = bp.value
-            for u, v, w in it:
-                for x, y in ((u, v), (v, u)):
-                    ux = unit_of[p[x]]
-                    keep = np.flatnonzero(ux >= 0)
-                    if keep.shape[0] == 0:
-                        continue
-                    o = keep[np.argsort(ux[keep], kind="stable")]
-                    uo = ux[o]
-                    starts = np.flatnonzero(np.r_[True, uo[1:] != uo[:-1]])
-                    ends = np.r_[starts[1:], uo.shape[0]]
-                    for s, e in zip(starts, ends):
-                        sel = o[s:e]
-                        yield int(uo[s]), (x[sel], y[sel], None if w is None else w[sel])
-
-        def run(it):
-            p, nw = bp.value, bw.value
-            got = {}
-            for unit, chunk in it:
-                got.setdefault(unit, []).append(chunk)
-            for unit, chunks in sorted(got.items()):
-                yield _call(kernel, unit, pairs[unit], p, nw, chunks)
-
-        try:
-            res = (self.rdd.mapPartitions(split).partitionBy(n_units, lambda unit: unit)
-                   .mapPartitions(run).collect())
-        finally:
-            bp.unpersist()
-            bw.unpersist()
-        seen = {r[0] for r in res}
         p = np.asarray(parts, dtype=np.int64)
         nw = np.asarray(node_weights, dtype=np.int64)
-        for unit in range(n_units):
-            if unit not in seen:
-                res.append(_call(kernel, unit, pairs[unit], p, nw, []))
-        return sorted(res, key=lambda r: r[0])
+
+        def run(unit, chunks, arr):
+            return _call(kernel, unit, pairs[unit], arr["parts"], arr["nw"], chunks)
+
+        res = self.route(_pair_split, run, len(pairs), parts=p, nw=nw, unit_of=unit_of)
+        for unit in range(len(pairs)):
+            if unit not in res:
+                res[unit] = _call(kernel, unit, pairs[unit], p, nw, [])
+        return [(unit, *res[unit]) for unit in range(len(pairs))]
+
+
+def group_chunks(key, x, y, w):
+    """``(unit, (x, y, w))`` for every unit in ``key`` (``-1``: dropped), rows kept in block order."""
+    keep = np.flatnonzero(key >= 0)
+    if keep.shape[0] == 0:
+        return
+    o = keep[np.argsort(key[keep], kind="stable")]
+    ko = key[o]
+    starts = np.flatnonzero(np.r_[True, ko[1:] != ko[:-1]])
+    ends = np.r_[starts[1:], ko.shape[0]]
+    for s, e in zip(starts, ends):
+        sel = o[s:e]
+        yield int(ko[s]), (x[sel], y[sel], None if w is None else w[sel])
+
+
+def _pair_split(u, v, w, a):
+    p, unit_of = a["parts"], a["unit_of"]
+    for x, y in ((u, v), (v, u)):
+        yield from group_chunks(unit_of[p[x]], x, y, w)
+
+
+def _cut_cells(u, v, w, a, acc):
+    p, k = a["parts"], a["k"]
+    su, sv = p[u], p[v]
+    m = su != sv
+    idx = su[m] * k + sv[m]
+    if w is None:
+        acc += np.bincount(idx, minlength=acc.shape[0])
+    else:
+        np.add.at(acc, idx, w[m])
 
 
 def _call(kernel, unit, pair, p, nw, chunks):
@@ -221,4 +266,4 @@ def _call(kernel, unit, pair, p, nw, chunks):
     if w is None:
         w = np.ones(x.shape[0], dtype=np.int64)
     out_nodes, out_shards, gain = kernel(unit, nodes, x, y, w, p[y], nw[y], p[nodes], nw[nodes])
-    return unit, np.asarray(out_nodes, dtype=np.int64), np.asarray(out_shards, dtype=np.int64), int(gain)
+    return np.asarray(out_nodes, dtype=np.int64), np.asarray(out_shards, dtype=np.int64), int(gain)

@@ -229,6 +229,10 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
                            collect_edges=collect_edges, progress=progress)
     stage("hierarchy", t, rounds=h.rounds, clusters=[int(x) for x in h.sizes], edges=[int(x) for x in h.edges])
 
+    t = time.perf_counter()
+    blocks = _Blocks(spark, sg)
+    blocks("cut")
+    stage("edge blocks", t)
     best, start_rows = None, []
     for name in starts:
         t = time.perf_counter()
@@ -236,7 +240,7 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
         if ck.has(key):
             order = ck.load(key)[0]["order"]
         elif name == "hierarchy":
-            order = linear_order_df(spark, h, sg.edges)
+            order = linear_order_df(spark, h, sg.edges, blocks=blocks("cut"))
         else:
             from partition.embedding import spectral_order
 
@@ -246,17 +250,15 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
         t = time.perf_counter()
         parts = np.asarray(line_cut(order, nweights, k, eps), dtype=np.int64)
         stage(f"{name}: line cut", t)
-        t = time.perf_counter()
-        blocks = _Blocks(spark, sg)
         raw = blocks("cut").cut_total(parts)
-        stage(f"{name}: edge blocks", t)
         for step in steps:
             t = time.perf_counter()
             key = f"{name}-{step}"
             if ck.has(key):
                 parts = ck.load(key)[0]["parts"]
             elif step == "window":
-                parts = spark_window(spark, sg, order, parts, rule, nweights, progress=progress)
+                parts = spark_window(spark, sg, order, parts, rule, nweights, progress=progress,
+                                     blocks=blocks("cut"))
             elif step == "fm":
                 parts = spark_fm(spark, sg, parts, rule, nw_ones, seed=seed, progress=progress, blocks=blocks("fm"),
                                  **fm_opts)
@@ -270,10 +272,10 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
             ck.save(key, {"parts": parts})
             stage(f"{name}: {step}", t, where="spark" if step in UNIT_STEPS else "driver")
         final = blocks("cut").cut_total(parts)
-        blocks.release()
         start_rows.append({"start": name, "raw_cut": raw, "cut": final})
         if best is None or final < best[0]:
             best = (final, name, parts, order)
+    blocks.release()
     final, chosen, parts, order = best
     loads = np.bincount(parts, weights=nw_ones, minlength=k)
     report = {

@@ -5,8 +5,9 @@ without the graph: walks of the picked-edge trees, anchors, rule 7 and 8) needs
 only the hierarchy's per-level arrays, which the driver holds after
 :func:`partition.spark.hierarchy.build_hierarchy_df` (O(n) per level). The
 orientation of rule 10 needs the edges: per level, from the level below the
-top down to level 1, every cluster's score is a ``groupBy`` sum over the edges
-leaving it, computed by Spark on a table of node positions, exactly as
+top down to level 1, every cluster's score is a sum over the edges leaving
+it, one Spark job over the cached edge blocks with the labels and positions
+broadcast (:class:`partition.spark.blocks.EdgeBlocks`), exactly as
 :func:`partition.embedding.orient_clusters` computes it (integer sums). The cut
 is :func:`partition.cut.line_cut` on the driver.
 """
@@ -14,13 +15,23 @@ is :func:`partition.cut.line_cut` on the driver.
 from __future__ import annotations
 
 import numpy as np
-import pandas as pd
 
 from partition.embedding import linear_order, positions
-from partition.spark.frames import to_numpy
 from partition.spark.session import describe
 
 __all__ = ["linear_order_df", "directed_edges"]
+
+
+def _scores(u, v, w, a, acc):
+    # rule 10 score of every cluster: each edge leaving it, from both ends
+    lab, pos, start, size = a["lab"], a["pos"], a["start"], a["size"]
+    for x, y in ((u, v), (v, u)):
+        lx = lab[x]
+        m = lx != lab[y]
+        lx = lx[m]
+        st = start[lx]
+        t = 2 * (pos[x[m]] - st) - (size[lx] - 1)
+        np.add.at(acc, lx, np.where(pos[y[m]] < st, t, -t))
 
 
 def directed_edges(edges):
@@ -31,7 +42,7 @@ def directed_edges(edges):
         edges.select(F.col("v").alias("x"), F.col("u").alias("y"), "w"))
 
 
-def linear_order_df(spark, hierarchy, edges, orient=True):
+def linear_order_df(spark, hierarchy, edges, orient=True, blocks=None):
     """The node order of :func:`partition.embedding.linear_order` (with the graph), edges in Spark.
 
     Parameters
@@ -42,6 +53,8 @@ def linear_order_df(spark, hierarchy, edges, orient=True):
         ``u < v`` each edge once (the graph of the hierarchy).
     orient : bool
         Apply rule 10 (as the in-memory engine does when given the graph).
+    blocks : partition.spark.blocks.EdgeBlocks or None
+        The edges as cached blocks (built and dropped here when ``None``).
 
     Returns
     -------
@@ -53,31 +66,29 @@ def linear_order_df(spark, hierarchy, edges, orient=True):
     K. Aydin, M. Bateni and V. Mirrokni, "Distributed balanced partitioning
     via linear embedding", WSDM 2016.
     """
-    from pyspark.sql import functions as F
-
     n = hierarchy.n
     pos = positions(linear_order(hierarchy, None))
     if orient and hierarchy.rounds > 1:
-        both = directed_edges(edges).select("x", "y").localCheckpoint()
-        for r in range(hierarchy.rounds - 1, 0, -1):
-            describe(spark, f"order: orientation level {r}")
-            lab, c = hierarchy.labels[r], hierarchy.sizes[r]
-            start = np.full(c, n, dtype=np.int64)
-            np.minimum.at(start, lab, pos)
-            size = np.bincount(lab, minlength=c).astype(np.int64)
-            nodes = spark.createDataFrame(pd.DataFrame({
-                "node": np.arange(n, dtype=np.int64), "lab": lab, "pos": pos,
-                "st": start[lab], "sz": size[lab]}))
-            xu = nodes.select(F.col("node").alias("x"), F.col("lab").alias("lu"), F.col("pos").alias("pu"), "st", "sz")
-            yv = nodes.select(F.col("node").alias("y"), F.col("lab").alias("lv"), F.col("pos").alias("pv"))
-            j = both.join(xu, "x").join(yv, "y").filter(F.col("lu") != F.col("lv"))
-            t = F.lit(2) * (F.col("pu") - F.col("st")) - (F.col("sz") - 1)
-            score = j.groupBy("lu").agg(F.sum(F.when(F.col("pv") < F.col("st"), t).otherwise(-t)).alias("score"))
-            got = to_numpy(score, ["lu", "score"])
-            sc = np.zeros(c, dtype=np.int64)
-            sc[got["lu"].astype(np.int64)] = got["score"].astype(np.int64)
-            turn = (sc > 0)[lab]
-            pos = np.where(turn, 2 * start[lab] + size[lab] - 1 - pos, pos)
+        own = blocks is None
+        if own:
+            from pyspark.sql import functions as F
+
+            from partition.spark.blocks import EdgeBlocks
+
+            blocks = EdgeBlocks(spark, edges.select("u", "v", F.lit(1).cast("long").alias("wi")), n, True)
+        try:
+            for r in range(hierarchy.rounds - 1, 0, -1):
+                describe(spark, f"order: orientation level {r}")
+                lab, c = hierarchy.labels[r], hierarchy.sizes[r]
+                start = np.full(c, n, dtype=np.int64)
+                np.minimum.at(start, lab, pos)
+                size = np.bincount(lab, minlength=c).astype(np.int64)
+                sc = blocks.sum_over(_scores, c, lab=np.asarray(lab, dtype=np.int64), pos=pos, start=start, size=size)
+                turn = (sc > 0)[lab]
+                pos = np.where(turn, 2 * start[lab] + size[lab] - 1 - pos, pos)
+        finally:
+            if own:
+                blocks.release()
     order = np.empty(n, dtype=np.int64)
     order[pos] = np.arange(n, dtype=np.int64)
     return order

@@ -6,7 +6,7 @@ numba kernels the same arrays, so the result is identical:
 ``window`` (:func:`partition.refine.window_dp.refine_window`)
     Every round frees the boundaries of :func:`~partition.refine.window_dp._free_mask`;
     each chain of free boundaries is a unit: a task gets the line edges with
-    both ends between the chain's fixed neighbours (``groupBy`` chain) and runs
+    both ends between the chain's fixed neighbours (one shuffle of the edge blocks) and runs
     :func:`~partition.refine.window_dp.window_dp_round` on that stretch of the
     line, shifted to start at 0 (windows and tables shift with it).
 ``fm`` (:func:`partition.refine.fm.refine_fm`, schedule ``matched``)
@@ -29,8 +29,8 @@ aggregates (:func:`int_weights`).
 
 from __future__ import annotations
 
+import numba
 import numpy as np
-import pandas as pd
 
 from partition.cut import boundaries_from_parts, parts_from_boundaries
 from partition.errors import ParameterError
@@ -39,6 +39,7 @@ from partition.refine.schedule import matched_pairs
 from partition.refine.swaps import swap_pair
 from partition.refine.window_dp import _free_mask, default_window, window_dp_round
 from partition.rules import AFFINITY_SCALE
+from partition.spark.blocks import group_chunks
 from partition.spark.session import describe
 
 __all__ = ["int_weights", "edge_blocks", "spark_window", "spark_fm", "spark_swaps", "UNIT_STEPS"]
@@ -74,23 +75,88 @@ def int_weights(spark, sg, kind):
     return sg.edges.withColumn("wi", F.bround(F.col("w") * float(AFFINITY_SCALE), 0).cast("long")), False
 
 
-def _local(gn, gshard, gnw, ex, ey, w, sy, nwy):
-    """Local CSR over a unit's nodes ``gn`` and their neighbours, ids in increasing global order."""
-    ids = np.union1d(gn, ey)
-    loc_n = np.searchsorted(ids, gn)
-    lx, ly = np.searchsorted(ids, ex), np.searchsorted(ids, ey)
-    o = np.lexsort((ly, lx))
-    lx, ly = lx[o], ly[o]
-    size = ids.shape[0]
+def _local(gn, gshard, gnw, ex, ey, w, sy, nwy, n=None):
+    """Local CSR over a unit's nodes ``gn`` and their neighbours, ids in increasing global order.
+
+    Returns ``ids`` (global id of each local node), ``indptr``, ``indices``
+    (int32, each row's neighbours in increasing order), the weights in CSR
+    order, and the shard and weight of every local node.
+    """
+    n = int(max(gn.max(initial=-1), ey.max(initial=-1)) + 1) if n is None else int(n)
+    return _local_csr(n, gn, gshard, gnw, ex, ey, w, sy, nwy)
+
+
+@numba.njit(cache=True, nogil=True)
+def _local_csr(n, gn, gshard, gnw, ex, ey, w, sy, nwy):
+    # global → local ids by one scan over the marked ids (increasing order), then
+    # two stable counting sorts (by neighbour, then by row): rows in increasing
+    # local id, each row's neighbours increasing — lexsort((ly, lx)) order
+    lid = np.full(n, -1, dtype=np.int64)
+    for i in range(gn.shape[0]):
+        lid[gn[i]] = 0
+    for i in range(ey.shape[0]):
+        lid[ey[i]] = 0
+    size = 0
+    for g in range(n):
+        if lid[g] == 0:
+            lid[g] = size
+            size += 1
+        else:
+            lid[g] = -1
+    ids = np.empty(size, dtype=np.int64)
+    size = 0
+    for g in range(n):
+        if lid[g] >= 0:
+            ids[size] = g
+            size += 1
+    m = ex.shape[0]
+    lx = np.empty(m, dtype=np.int64)
+    ly = np.empty(m, dtype=np.int64)
+    for i in range(m):
+        lx[i] = lid[ex[i]]
+        ly[i] = lid[ey[i]]
+    start = np.zeros(size + 1, dtype=np.int64)
+    for i in range(m):
+        start[ly[i] + 1] += 1
+    for j in range(size):
+        start[j + 1] += start[j]
+    by_y = np.empty(m, dtype=np.int64)
+    for i in range(m):
+        by_y[start[ly[i]]] = i
+        start[ly[i]] += 1
     indptr = np.zeros(size + 1, dtype=np.int64)
-    np.cumsum(np.bincount(lx, minlength=size), out=indptr[1:])
+    for i in range(m):
+        indptr[lx[i] + 1] += 1
+    for j in range(size):
+        indptr[j + 1] += indptr[j]
+    fill = indptr[:-1].copy()
+    indices = np.empty(m, dtype=np.int32)
+    wl = np.empty(m, dtype=np.int64)
     parts = np.full(size, -1, dtype=np.int64)
     nwl = np.zeros(size, dtype=np.int64)
-    parts[ly] = sy[o]
-    nwl[ly] = nwy[o]
-    parts[loc_n] = gshard
-    nwl[loc_n] = gnw
-    return ids, indptr, ly.astype(np.int32), w[o], parts, nwl
+    for t in range(m):
+        i = by_y[t]
+        q = fill[lx[i]]
+        fill[lx[i]] += 1
+        indices[q] = ly[i]
+        wl[q] = w[i]
+        parts[ly[i]] = sy[i]
+        nwl[ly[i]] = nwy[i]
+    for i in range(gn.shape[0]):
+        parts[lid[gn[i]]] = gshard[i]
+        nwl[lid[gn[i]]] = gnw[i]
+    return ids, indptr, indices, wl, parts, nwl
+
+
+def _line_split(u, v, w, a):
+    # every edge with both ends inside one free chain's stretch of the line goes to that chain
+    pos, fpos, is_chain = a["pos"], a["fpos"], a["is_chain"]
+    pu, pv = pos[u], pos[v]
+    p, q = np.minimum(pu, pv), np.maximum(pu, pv)
+    seg = np.searchsorted(fpos, p, side="right") - 1
+    segq = np.searchsorted(fpos, q, side="right") - 1
+    key = np.where((seg == segq) & is_chain[seg], seg, -1)
+    yield from group_chunks(key, p, q, w)
 
 
 def _apply(blocks, parts, nw, pairs, kernel):
@@ -286,7 +352,7 @@ def spark_swaps(spark, sg, parts, rule, node_weights, max_rounds=20, tol=1e-3, i
     return parts
 
 
-def spark_window(spark, sg, order, parts, rule, node_weights, w=None, max_rounds=16, progress=None):
+def spark_window(spark, sg, order, parts, rule, node_weights, w=None, max_rounds=16, progress=None, blocks=None):
     """:func:`partition.refine.window_dp.refine_window` (``chain_length=1``), chains in Spark tasks.
 
     Parameters
@@ -301,6 +367,9 @@ def spark_window(spark, sg, order, parts, rule, node_weights, w=None, max_rounds
     w : int or None
         Window half-width (default :func:`~partition.refine.window_dp.default_window`).
     max_rounds : int
+    progress : callable or None
+    blocks : partition.spark.blocks.EdgeBlocks or None
+        The edges with :func:`int_weights` ``"cut"`` (built and dropped here when ``None``).
 
     Returns
     -------
@@ -311,8 +380,6 @@ def spark_window(spark, sg, order, parts, rule, node_weights, w=None, max_rounds
     K. Aydin, M. Bateni and V. Mirrokni, "Distributed balanced partitioning via
     linear embedding", WSDM 2016.
     """
-    from pyspark.sql import functions as F
-
     k = rule.k
     n = order.shape[0]
     try:
@@ -321,31 +388,16 @@ def spark_window(spark, sg, order, parts, rule, node_weights, w=None, max_rounds
         return parts
     w = default_window(n, k) if w is None else int(w)
     cap, floor = int(rule.cap), int(rule.floor)
-    wedges, unit_w = int_weights(spark, sg, "cut")
     nwv = np.ones(n, dtype=np.int64) if node_weights is None else node_weights
     prefix = np.zeros(n + 1, dtype=np.int64)
     np.cumsum(nwv[order], out=prefix[1:])
     pos = np.empty(n, dtype=np.int64)
     pos[order] = np.arange(n, dtype=np.int64)
-    describe(spark, "refine window: line edges")
-    pt = spark.createDataFrame(pd.DataFrame({"node": np.arange(n, dtype=np.int64), "pos": pos}))
-    le = (wedges.join(pt.select(F.col("node").alias("u"), F.col("pos").alias("pu")), "u")
-                .join(pt.select(F.col("node").alias("v"), F.col("pos").alias("pv")), "v")
-                .select(F.least("pu", "pv").alias("p"), F.greatest("pu", "pv").alias("q"), "wi")).localCheckpoint()
-    state = {}
+    own = blocks is None
+    blocks = edge_blocks(spark, sg, "cut") if own else blocks
+    unit_w = blocks.unit_w
 
-    def assign(batches):
-        fpos = state["fpos"]
-        for pdf in batches:
-            p = pdf["p"].to_numpy(np.int64)
-            q = pdf["q"].to_numpy(np.int64)
-            seg = np.searchsorted(fpos, p, side="right") - 1
-            segq = np.searchsorted(fpos, q, side="right") - 1
-            keep = (seg == segq) & state["is_chain"][seg]
-            yield pd.DataFrame({"chain": seg[keep], "p": p[keep], "q": q[keep], "wi": pdf["wi"].to_numpy(np.int64)[keep]})
-
-    def solve(c, p, q, ew):
-        full, fixed, bb = state["full"], state["fixed"], state["b"]
+    def solve(c, p, q, ew, full, fixed, bb):
         i0, i1 = int(fixed[c]), int(fixed[c + 1])
         js = np.arange(i0, i1 - 1)
         left, right = int(full[i0]), int(full[i1])
@@ -353,36 +405,36 @@ def spark_window(spark, sg, order, parts, rule, node_weights, w=None, max_rounds
         out, g = window_dp_round(p[o] - left, q[o] - left, _EMPTY if unit_w else ew[o],
                                  prefix[left:right + 1], bb[js] - left, np.ones(js.shape[0], dtype=bool),
                                  w, cap, floor)
-        return js, out + left, g
+        return js, out + left
 
-    def task(pdf):
-        c = int(pdf["chain"].iloc[0])
-        js, out, _ = solve(c, pdf["p"].to_numpy(np.int64), pdf["q"].to_numpy(np.int64), pdf["wi"].to_numpy(np.int64))
-        return pd.DataFrame({"j": js.astype(np.int64), "b": out.astype(np.int64)})
+    def run(c, chunks, a):
+        p = np.concatenate([x[0] for x in chunks]).astype(np.int64)
+        q = np.concatenate([x[1] for x in chunks]).astype(np.int64)
+        ew = _EMPTY if unit_w else np.concatenate([x[2] for x in chunks]).astype(np.int64)
+        return solve(c, p, q, ew, a["full"], a["fixed"], a["b"])
 
     idle = 0
-    for r in range(max_rounds if k > 1 else 0):
-        describe(spark, f"refine window: round {r + 1}")
-        free = _free_mask(k, r, 1)
-        full = np.concatenate(([0], b, [n]))
-        fixed = np.concatenate(([0], np.flatnonzero(~free) + 1, [k]))
-        fpos = full[fixed]
-        is_chain = np.append(np.diff(fixed) >= 2, False)
-        state.update(full=full, fixed=fixed, fpos=fpos, is_chain=is_chain, b=b)
-        res = le.mapInPandas(assign, "chain long, p long, q long, wi long").groupBy("chain").applyInPandas(
-            task, "j long, b long").toPandas()
-        nb = b.copy()
-        nb[res["j"].to_numpy(np.int64)] = res["b"].to_numpy(np.int64)
-        done = set(np.unique(res["j"].to_numpy(np.int64)).tolist()) if len(res) else set()
-        for c in np.flatnonzero(is_chain[:-1]):  # chains without any edge: solved on the driver
-            i0 = int(fixed[c])
-            if i0 not in done:
-                js, out, _ = solve(int(c), _EMPTY, _EMPTY, _EMPTY)
+    try:
+        for r in range(max_rounds if k > 1 else 0):
+            describe(spark, f"refine window: round {r + 1}")
+            free = _free_mask(k, r, 1)
+            full = np.concatenate(([0], b, [n]))
+            fixed = np.concatenate(([0], np.flatnonzero(~free) + 1, [k]))
+            fpos = full[fixed]
+            is_chain = np.append(np.diff(fixed) >= 2, False)
+            res = blocks.route(_line_split, run, fpos.shape[0], pos=pos, fpos=fpos, is_chain=is_chain,
+                               full=full, fixed=fixed, b=b)
+            nb = b.copy()
+            for c in np.flatnonzero(is_chain[:-1]):  # chains without any edge: solved on the driver
+                js, out = res[int(c)] if int(c) in res else solve(int(c), _EMPTY, _EMPTY, _EMPTY, full, fixed, b)
                 nb[js] = out
-        idle = idle + 1 if np.array_equal(nb, b) else 0
-        b = nb
-        if progress is not None:
-            progress({"stage": f"window round {r + 1}", "moved": int(np.count_nonzero(nb != full[1:-1]))})
-        if idle >= 2:
-            break
+            idle = idle + 1 if np.array_equal(nb, b) else 0
+            b = nb
+            if progress is not None:
+                progress({"stage": f"window round {r + 1}", "moved": int(np.count_nonzero(nb != full[1:-1]))})
+            if idle >= 2:
+                break
+    finally:
+        if own:
+            blocks.release()
     return np.asarray(parts_from_boundaries(order, b, k), dtype=np.int64)
