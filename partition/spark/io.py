@@ -18,6 +18,7 @@ import os
 from dataclasses import dataclass
 
 import numpy as np
+import pandas as pd
 
 from partition.errors import InputError
 from partition.spark.frames import dense_rank, to_numpy
@@ -292,24 +293,47 @@ def read_graph_df(spark, path, fmt="auto", weighted=False, source_column=None, t
     allids = id_cols[0]
     for extra in id_cols[1:]:
         allids = allids.unionByName(extra)
-    allids = allids.distinct().localCheckpoint()
     non_int = allids.filter(F.expr("try_cast(id as bigint)").isNull()).limit(1).count()
     id_kind = "str" if non_int else "int"
+    extra = ["w"] if weighted else []
     if id_kind == "int":
-        allids = allids.select(F.expr("cast(id as bigint)").alias("id")).distinct()
-    nodes = dense_rank(allids, "id", "node").select("node", "id").localCheckpoint()
-    n = nodes.count()
-    if n == 0:
-        raise InputError(path, "the graph is empty: no edges were found")
+        # integer ids: the sorted distinct ids go to the driver (O(n), like the engine's other node arrays)
+        # and every edge finds its dense ids by binary search in a broadcast copy — no joins over the edges
+        got = allids.select(F.expr("cast(id as bigint)").alias("id")).distinct().toPandas()["id"]
+        ids = np.sort(got.to_numpy(np.int64))
+        n = int(ids.shape[0])
+        if n == 0:
+            raise InputError(path, "the graph is empty: no edges were found")
+        nodes = spark.createDataFrame(pd.DataFrame({"node": np.arange(n, dtype=np.int64), "id": ids}))
+        bids = spark.sparkContext.broadcast(ids)
 
-    key = "id"
-    conv = (lambda c: F.expr(f"cast({c} as bigint)")) if id_kind == "int" else (lambda c: F.col(c))
-    e = raw.select(conv("s").alias("sid"), conv("d").alias("did"), *(["w"] if weighted else []))
-    nmap = nodes.select(F.col(key), "node")
-    e = (e.join(nmap.withColumnRenamed("id", "sid").withColumnRenamed("node", "a"), "sid")
-          .join(nmap.withColumnRenamed("id", "did").withColumnRenamed("node", "b"), "did"))
-    e = e.filter(F.col("a") != F.col("b")).select(
-        F.least("a", "b").alias("u"), F.greatest("a", "b").alias("v"), *(["w"] if weighted else []))
+        def dense(batches):
+            table = bids.value
+            for pdf in batches:
+                a = np.searchsorted(table, pdf["sid"].to_numpy(np.int64))
+                b = np.searchsorted(table, pdf["did"].to_numpy(np.int64))
+                keep = a != b
+                out = pd.DataFrame({"u": np.minimum(a, b)[keep], "v": np.maximum(a, b)[keep]})
+                if weighted:
+                    out["w"] = pdf["w"].to_numpy(np.float64)[keep]
+                yield out
+
+        conv = lambda c: F.expr(f"cast({c} as bigint)")  # noqa: E731
+        e = raw.select(conv("s").alias("sid"), conv("d").alias("did"), *extra).mapInPandas(
+            dense, "u long, v long" + (", w double" if weighted else ""))
+    else:
+        allids = allids.distinct().localCheckpoint()
+        nodes = dense_rank(allids, "id", "node").select("node", "id").localCheckpoint()
+        n = nodes.count()
+        if n == 0:
+            raise InputError(path, "the graph is empty: no edges were found")
+        conv = lambda c: F.col(c)  # noqa: E731
+        e = raw.select(F.col("s").alias("sid"), F.col("d").alias("did"), *extra)
+        nmap = nodes.select("id", "node")
+        e = (e.join(nmap.withColumnRenamed("id", "sid").withColumnRenamed("node", "a"), "sid")
+              .join(nmap.withColumnRenamed("id", "did").withColumnRenamed("node", "b"), "did"))
+        e = e.filter(F.col("a") != F.col("b")).select(
+            F.least("a", "b").alias("u"), F.greatest("a", "b").alias("v"), *extra)
     if weighted:
         e = e.groupBy("u", "v").agg(F.sum("w").alias("w"))
     else:
