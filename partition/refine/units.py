@@ -18,6 +18,7 @@ from partition.errors import ParameterError
 from partition.rules import AFFINITY_SCALE, quantise
 
 __all__ = [
+    "settle",
     "heap_push",
     "heap_pop",
     "fixed_point_weights",
@@ -162,6 +163,17 @@ def shard_index(parts, k):
 SCHEDULES = ("round_robin", "line", "matched")
 
 
+def settle(settled, pairs, changed):
+    """Mark unchanged pairs settled, then reopen every pair touching a shard that changed (in place)."""
+    for (a, b), ch in zip(pairs, changed):
+        if not ch:
+            settled[a, b] = settled[b, a] = True
+    for (a, b), ch in zip(pairs, changed):
+        if ch:
+            settled[[a, b], :] = False
+            settled[:, [a, b]] = False
+
+
 def pair_rounds(graph, parts, k, weights, run_round, schedule="round_robin", max_rounds=None, seed=0, tol=0.0):
     """Drive rounds of disjoint shard pairs, skipping pairs known to gain nothing.
 
@@ -231,13 +243,7 @@ def pair_rounds(graph, parts, k, weights, run_round, schedule="round_robin", max
             pairs = matched_pairs(np.where(live, cm, 0))
         pairs = [(a, b) for a, b in pairs if live[a, b]]
         parts, gains, changed = run_round(parts, pairs)
-        for (a, b), ch in zip(pairs, changed):
-            if not ch:
-                settled[a, b] = settled[b, a] = True
-        for (a, b), ch in zip(pairs, changed):
-            if ch:
-                settled[[a, b], :] = False
-                settled[:, [a, b]] = False
+        settle(settled, pairs, changed)
         rounds.append({"pairs": len(pairs), "gain": sum(gains)})
         idle = idle + 1 if not any(changed) else 0
         if schedule == "line" and idle >= 2:

@@ -37,6 +37,7 @@ from partition.errors import ParameterError
 from partition.refine.fm import fm_pair
 from partition.refine.schedule import matched_pairs
 from partition.refine.swaps import swap_pair
+from partition.refine.units import settle
 from partition.refine.window_dp import _free_mask, default_window, window_dp_round
 from partition.rules import AFFINITY_SCALE
 from partition.spark.blocks import group_chunks
@@ -148,6 +149,13 @@ def _local_csr(n, gn, gshard, gnw, ex, ey, w, sy, nwy):
     return ids, indptr, indices, wl, parts, nwl
 
 
+def _sides(a, b, gn, gshard, gnw, ex, ey, w, sy, nwy):
+    """:func:`_local` plus the local ids of the unit's nodes in shard ``a`` and in shard ``b``."""
+    ids, indptr, indices, lw, lp, lnw = _local(gn, gshard, gnw, ex, ey, w, sy, nwy)
+    loc = np.searchsorted(ids, gn)
+    return ids, indptr, indices, lw, lp, lnw, loc[lp[loc] == a], loc[lp[loc] == b]
+
+
 def _line_split(u, v, w, a):
     # every edge with both ends inside one free chain's stretch of the line goes to that chain
     pos, fpos, is_chain = a["pos"], a["fpos"], a["is_chain"]
@@ -218,10 +226,7 @@ def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, st
         a, b = pairs_now[unit]
         if gn.shape[0] == 0:
             return _EMPTY, _EMPTY, 0
-        ids, indptr, indices, lw, lp, lnw = _local(gn, gshard, gnw, ex, ey, w, sy, nwy)
-        loc = np.searchsorted(ids, gn)
-        la = loc[lp[loc] == a]
-        lb = loc[lp[loc] == b]
+        ids, indptr, indices, lw, lp, lnw, la, lb = _sides(a, b, gn, gshard, gnw, ex, ey, w, sy, nwy)
         mov = np.concatenate((la, lb))
         stall = max_stall if max_stall < 0 else max(int(max_stall), int(stall_fraction * mov.shape[0]))
         new, g = fm_pair(indptr, indices, lw, lnw, lp, a, b, mov, cap, cap, floor, floor, max_passes, stall)
@@ -249,13 +254,7 @@ def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, st
             parts[nodes] = new
             if diff.any():
                 cm = None
-            for (a, b), ch in zip(pairs, changed):
-                if not ch:
-                    settled[a, b] = settled[b, a] = True
-            for (a, b), ch in zip(pairs, changed):
-                if ch:
-                    settled[[a, b], :] = False
-                    settled[:, [a, b]] = False
+            settle(settled, pairs, changed)
             if progress is not None:
                 progress({"stage": f"fm round {r + 1}", "pairs": len(pairs), "changed": int(sum(changed))})
             low = low + 1 if tol > 0 and sum(gains) <= tol * start_cut else 0
@@ -307,10 +306,7 @@ def spark_swaps(spark, sg, parts, rule, node_weights, max_rounds=20, tol=1e-3, i
         a, b = pairs_now[unit]
         if gn.shape[0] == 0:
             return _EMPTY, _EMPTY, 0
-        ids, indptr, indices, lw, lp, lnw = _local(gn, gshard, gnw, ex, ey, w, sy, nwy)
-        loc = np.searchsorted(ids, gn)
-        la = loc[lp[loc] == a]
-        lb = loc[lp[loc] == b]
+        ids, indptr, indices, lw, lp, lnw, la, lb = _sides(a, b, gn, gshard, gnw, ex, ey, w, sy, nwy)
         rank = np.zeros(ids.shape[0], dtype=np.int64)
         rank[la] = np.arange(la.shape[0])
         rank[lb] = np.arange(lb.shape[0])

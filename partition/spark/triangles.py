@@ -51,34 +51,33 @@ def colour_count(m, task_edges=TASK_EDGES):
 
 
 @numba.njit(cache=True, nogil=True)
-def owner(a, b, c, rho):
-    """Code ``x ρ² + y ρ + z`` of the triple ``x < y < z`` that credits a triangle coloured ``a, b, c``."""
+def _sort3(a, b, c):
     if a > b:
         a, b = b, a
     if b > c:
         b, c = c, b
     if a > b:
         a, b = b, a
+    return a, b, c
+
+
+@numba.njit(cache=True, nogil=True)
+def owner(a, b, c, rho):
+    """Code ``x ρ² + y ρ + z`` of the triple ``x < y < z`` that credits a triangle coloured ``a, b, c``."""
+    a, b, c = _sort3(a, b, c)
     if a == b and b == c:  # one colour: the two smallest other colours
         y = 0 if a != 0 else 1
         z = y + 1
         if z == a:
             z += 1
-        x, y, z = a, y, z
+        x, y, z = _sort3(a, y, z)
     elif a == b or b == c:  # two colours: the smallest third colour
-        x, y = a, c
         z = 0
-        while z == x or z == y:
+        while z == a or z == c:
             z += 1
-        x, y, z = x, y, z
+        x, y, z = _sort3(a, c, z)
     else:
-        return a * rho * rho + b * rho + c
-    if x > y:
-        x, y = y, x
-    if y > z:
-        y, z = z, y
-    if x > y:
-        x, y = y, x
+        x, y, z = a, b, c
     return x * rho * rho + y * rho + z
 
 
