@@ -228,11 +228,12 @@ def main(argv=None):
     ap.add_argument("--star", type=int, nargs="?", const=1_000_000, default=None,
                     help="also the skew check: a star with this many leaves (default 1,000,000) plus a clique")
     ap.add_argument("--master", default=None)
+    ap.add_argument("--driver-memory", default="4g", help="spark.driver.memory of the local session (default 4g)")
     args = ap.parse_args(argv)
     from partition.spark.session import spark_session
 
     with tempfile.TemporaryDirectory(prefix="bench-spark-") as work:
-        spark = spark_session(master=args.master, work_dir=work)
+        spark = spark_session(master=args.master, work_dir=work, driver_memory=args.driver_memory)
         if not args.skip_rmat:
             bench_rmat(spark, args, work)
         if args.star:

@@ -58,6 +58,9 @@ MODES = ("distributed", "full")
 BYTES_PER_EDGE = 40  # in-memory engine, per undirected edge (CSR both ways, affinities, refinement)
 
 
+EDGES_PER_SHUFFLE_PARTITION = 4_000_000
+
+
 def fits_driver(path_or_stats, memory_bytes=None):
     """Whether the in-memory engine can run a graph on this machine (``--engine auto``).
 
@@ -190,6 +193,10 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
     if affinity == "weights" and not sg.weighted:
         raise ParameterError("affinity 'weights' needs a weighted graph")
     fm_opts = _fm_options(STEP_OPTIONS)
+    # a shuffle partition per EDGES_PER_SHUFFLE_PARTITION edges at least (the session's count is the floor):
+    # with 4 partitions a 64 M-edge join ran out of execution memory in a 4 GiB local driver
+    base = int(spark.conf.get("spark.sql.shuffle.partitions"))
+    spark.conf.set("spark.sql.shuffle.partitions", str(max(base, -(-sg.m // EDGES_PER_SHUFFLE_PARTITION))))
     collect_edges = COLLECT_EDGES if collect_edges is None else int(collect_edges)
     if work_dir is None:
         work_dir = tempfile.mkdtemp(prefix="shardline-spark-")
