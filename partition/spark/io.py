@@ -6,7 +6,9 @@ or commas between fields; lines whose first non-blank character is ``#`` or
 columns, or named ones, and a weight column). A node-weights file holds
 ``id weight`` text rows. Normalisation follows the in-memory builder: ids are
 integers when every id is an int64, else strings; dense ids in sorted id order
-(a range-partitioned rank, :func:`partition.spark.frames.dense_rank`); edges
+(integer ids: sorted on the driver, which holds O(n) arrays anyway, and found
+per edge by binary search in a broadcast copy; string ids: a range-partitioned
+rank, :func:`partition.spark.frames.dense_rank`, and joins); edges
 undirected with ``u < v``; self-loops dropped (their node kept); repeated pairs
 merged (weights summed, unweighted pairs counted once). A malformed line raises
 :class:`partition.errors.InputError` naming the file and the line.
