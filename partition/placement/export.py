@@ -52,7 +52,8 @@ from partition.atomic import atomic_path, write_bytes, write_text
 from partition.errors import InputError, ParameterError
 from partition.placement.lookup import read_node_shards
 
-__all__ = ["export_run", "verify_export", "file_sha256", "find_input_graph", "manifest_head", "FORMATS", "MANIFEST"]
+__all__ = ["export_run", "verify_export", "check_export", "publish_export", "file_sha256", "find_input_graph",
+           "manifest_head", "FORMATS", "MANIFEST"]
 
 FORMATS = ("parquet", "csv", "jsonl")
 MANIFEST = "manifest.json"
@@ -277,19 +278,9 @@ def export_run(assignment, out_dir, fmt="parquet", report=None, graph=None, forc
     ----------
     NIST, "Secure Hash Standard (SHS)", FIPS PUB 180-4, 2015 (SHA-256).
     """
-    if fmt not in FORMATS:
-        raise ParameterError(f"unknown export format {fmt!r}; expected one of {', '.join(FORMATS)}")
-    assignment = os.fspath(assignment)
-    out_dir = os.path.normpath(os.fspath(out_dir))
-    report_path = os.fspath(report) if report is not None else assignment + ".report.json"
-    if os.path.exists(out_dir):
-        if not os.path.isdir(out_dir):
-            raise ParameterError(f"{out_dir} exists and is not a folder; choose another output")
-        if not force:
-            raise ParameterError(f"{out_dir} already exists; use --force to replace it")
-    rep = _read_report(report_path)
+    assignment, out_dir, report_path, rep, graph_path, graph_sum = check_export(
+        assignment, out_dir, fmt, report, graph, force)
     k = int(rep["k"])
-    graph_path, graph_sum = _check_graph(rep, report_path, graph)
     ids, shards = read_node_shards(assignment)
     nodes = rep["input"].get("nodes")
     if nodes is not None and ids.shape[0] != int(nodes):
@@ -298,11 +289,54 @@ def export_run(assignment, out_dir, fmt="parquet", report=None, graph=None, forc
         raise InputError(assignment, f"uses shard {int(shards.max())} but the report says k = {k}")
     ids, shards = _sorted_rows(ids, shards)
     manifest = manifest_head(rep, fmt, graph_path, graph_sum, assignment, report_path, created)
+    return publish_export(out_dir, manifest, lambda tmp: _write_all(tmp, ids, shards, k, fmt))
+
+
+def check_export(assignment, out_dir, fmt, report, graph, force):
+    """The checks every export makes before it reads the assignment.
+
+    Returns
+    -------
+    tuple
+        ``(assignment, out_dir, report_path, report, graph_path, graph_sha256)``
+        with paths as strings (``out_dir`` normalised; the report defaults to
+        ``ASSIGNMENT.report.json``).
+
+    Raises
+    ------
+    ParameterError
+        Unknown format; ``out_dir`` is a file, or a folder and not ``force``.
+    InputError
+        Missing or malformed report, missing input graph, checksum mismatch.
+    """
+    if fmt not in FORMATS:
+        raise ParameterError(f"unknown export format {fmt!r}; expected one of {', '.join(FORMATS)}")
+    assignment = os.fspath(assignment)
+    out_dir = os.path.normpath(os.fspath(out_dir))
+    report_path = os.fspath(report) if report is not None else assignment.rstrip("/") + ".report.json"
+    if os.path.exists(out_dir):
+        if not os.path.isdir(out_dir):
+            raise ParameterError(f"{out_dir} exists and is not a folder; choose another output")
+        if not force:
+            raise ParameterError(f"{out_dir} already exists; use --force to replace it")
+    rep = _read_report(report_path)
+    graph_path, graph_sum = _check_graph(rep, report_path, graph)
+    return assignment, out_dir, report_path, rep, graph_path, graph_sum
+
+
+def publish_export(out_dir, manifest, fill):
+    """Build the export folder as a hidden temporary sibling, then rename it into place.
+
+    ``fill(tmp)`` writes the tables into ``tmp`` and returns the manifest's
+    ``files`` list; the manifest is written last. On any failure the
+    temporary folder is removed and an existing ``out_dir`` is left as it was.
+    Returns the manifest.
+    """
     parent = os.path.dirname(os.path.abspath(out_dir))
     os.makedirs(parent, exist_ok=True)
     tmp = tempfile.mkdtemp(prefix="." + os.path.basename(out_dir) + ".", suffix=".tmp", dir=parent)
     try:
-        manifest["files"] = _write_all(tmp, ids, shards, k, fmt)
+        manifest["files"] = fill(tmp)
         write_text(os.path.join(tmp, MANIFEST), json.dumps(manifest, indent=2, sort_keys=True) + "\n")
         os.chmod(tmp, 0o777 & ~_umask())
         _swap_in(tmp, out_dir)

@@ -19,16 +19,11 @@ Reference: NIST, "Secure Hash Standard (SHS)", FIPS PUB 180-4, 2015 (SHA-256).
 
 from __future__ import annotations
 
-import json
 import os
 import shutil
-import tempfile
 
-from partition.atomic import write_text
-from partition.errors import InputError, ParameterError
-from partition.placement.export import (
-    _EXT, FORMATS, MANIFEST, _check_graph, _data_files, _read_report, _swap_in, _umask, file_sha256, manifest_head,
-)
+from partition.errors import InputError
+from partition.placement.export import _EXT, _data_files, check_export, file_sha256, manifest_head, publish_export
 
 __all__ = ["export_run_spark"]
 
@@ -104,19 +99,9 @@ def export_run_spark(spark, assignment, out_dir, fmt="parquet", report=None, gra
     """
     from pyspark.sql import functions as F
 
-    if fmt not in FORMATS:
-        raise ParameterError(f"unknown export format {fmt!r}; expected one of {', '.join(FORMATS)}")
-    assignment = os.fspath(assignment)
-    out_dir = os.path.normpath(os.fspath(out_dir))
-    report_path = os.fspath(report) if report is not None else assignment.rstrip("/") + ".report.json"
-    if os.path.exists(out_dir):
-        if not os.path.isdir(out_dir):
-            raise ParameterError(f"{out_dir} exists and is not a folder; choose another output")
-        if not force:
-            raise ParameterError(f"{out_dir} already exists; use --force to replace it")
-    rep = _read_report(report_path)
+    assignment, out_dir, report_path, rep, graph_path, graph_sum = check_export(
+        assignment, out_dir, fmt, report, graph, force)
     k = int(rep["k"])
-    graph_path, graph_sum = _check_graph(rep, report_path, graph)
     df = _read_assignment(spark, assignment).localCheckpoint()
     bad = df.filter(F.col("shard").isNull() | (F.col("shard") < 0) | (F.col("shard") >= k)).limit(1).collect()
     if bad:
@@ -135,10 +120,8 @@ def export_run_spark(spark, assignment, out_dir, fmt="parquet", report=None, gra
     manifest["tables"] = "spark-folders"
     ext = _EXT[fmt]
     width = max(5, len(str(k - 1)))
-    parent = os.path.dirname(os.path.abspath(out_dir))
-    os.makedirs(parent, exist_ok=True)
-    tmp = tempfile.mkdtemp(prefix="." + os.path.basename(out_dir) + ".", suffix=".tmp", dir=parent)
-    try:
+
+    def fill(tmp):
         _write(df.orderBy("node"), os.path.join(tmp, f"assignment.{ext}"), fmt)
         by_shard = os.path.join(tmp, "_by_shard")
         writer = df.repartition("shard").sortWithinPartitions("shard", "node").write.partitionBy("shard")
@@ -157,11 +140,6 @@ def export_run_spark(spark, assignment, out_dir, fmt="parquet", report=None, gra
                 _empty_table(spark, schema, os.path.join(tmp, *rel.split("/")), fmt)
             files.append(_entry(tmp, rel, counts.get(s, 0), shard=s))
         shutil.rmtree(by_shard)
-        manifest["files"] = files
-        write_text(os.path.join(tmp, MANIFEST), json.dumps(manifest, indent=2, sort_keys=True) + "\n")
-        os.chmod(tmp, 0o777 & ~_umask())
-        _swap_in(tmp, out_dir)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
-    return manifest
+        return files
+
+    return publish_export(out_dir, manifest, fill)
