@@ -34,7 +34,7 @@ import pyarrow.parquet as pq
 from partition.atomic import atomic_path, write_bytes
 from partition.errors import InputError, ParameterError, check_parts
 
-__all__ = ["read_assignment", "write_assignment"]
+__all__ = ["read_assignment", "write_assignment", "open_node_shards"]
 
 _INT_PATTERN = r"^[+-]?[0-9]+$"
 _NL, _HASH, _PERCENT, _SPACE, _TAB, _CR = 10, 35, 37, 32, 9, 13
@@ -70,10 +70,34 @@ def read_assignment(path, graph, k=None) -> np.ndarray:
     """
     if k is not None:
         k = check_parts(k, graph.n)
+    name, table, raw = open_node_shards(path)
+    if table is not None:
+        nodes, shards, where = _table_columns(name, table)
+    else:
+        nodes, shards, where = _text_columns(name, raw)
+    return _align(name, graph, nodes, shards, k, where)
+
+
+def open_node_shards(path):
+    """The contents of a node,shard file, before its columns are read: ``(name, table, raw)``.
+
+    A Parquet file or dataset folder (the Spark engine writes folders) gives a
+    ``pyarrow.Table`` and ``raw = None``; a text file gives ``table = None``
+    and its bytes, decompressed when they start with the gzip signature
+    (RFC 1952). A file named ``.parquet``/``.pq`` without the Parquet
+    signature ``PAR1`` is an error rather than text.
+
+    Raises
+    ------
+    InputError
+        Missing or unreadable file or folder, broken gzip or Parquet data.
+    """
     name = os.fspath(path)
-    if os.path.isdir(name):  # a Parquet dataset folder, as the Spark engine writes
-        nodes, shards, where = _parquet_folder_columns(name)
-        return _align(name, graph, nodes, shards, k, where)
+    if os.path.isdir(name):
+        try:
+            return name, pq.read_table(name), None
+        except (pa.ArrowException, OSError) as exc:
+            raise InputError(name, f"is not a readable Parquet folder ({exc})") from None
     try:
         with open(name, "rb") as fh:
             raw = fh.read()
@@ -87,12 +111,13 @@ def read_assignment(path, graph, k=None) -> np.ndarray:
         except (OSError, EOFError, zlib.error) as exc:
             raise InputError(name, f"is not a valid gzip file ({exc})") from None
     if raw[:4] == b"PAR1":
-        nodes, shards, where = _parquet_columns(name, raw)
-    elif name.lower().endswith((".parquet", ".pq")):
+        try:
+            return name, pq.read_table(pa.BufferReader(raw)), None
+        except (pa.ArrowException, OSError) as exc:
+            raise InputError(name, f"is not a readable Parquet file ({exc})") from None
+    if name.lower().endswith((".parquet", ".pq")):
         raise InputError(name, "is not a Parquet file (it lacks the PAR1 signature)")
-    else:
-        nodes, shards, where = _text_columns(name, raw)
-    return _align(name, graph, nodes, shards, k, where)
+    return name, None, raw
 
 
 def _align(name, graph, nodes, shards, k, where):
@@ -318,22 +343,6 @@ def _locate_parse_error(name, raw, starts, ends, data_lines, mode, exc):
 
 
 # --- Parquet input -----------------------------------------------------------
-
-
-def _parquet_folder_columns(name):
-    try:
-        table = pq.read_table(name)
-    except (pa.ArrowException, OSError) as exc:
-        raise InputError(name, f"is not a readable Parquet folder ({exc})") from None
-    return _table_columns(name, table)
-
-
-def _parquet_columns(name, raw):
-    try:
-        table = pq.read_table(pa.BufferReader(raw))
-    except (pa.ArrowException, OSError) as exc:
-        raise InputError(name, f"is not a readable Parquet file ({exc})") from None
-    return _table_columns(name, table)
 
 
 def _table_columns(name, table):

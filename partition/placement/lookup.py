@@ -24,18 +24,16 @@ when every id is an integer, otherwise strings; errors name the file and line.
 from __future__ import annotations
 
 import csv
-import gzip
 import io
 import os
-import zlib
 
 import numba
 import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.csv as pacsv
-import pyarrow.parquet as pq
 
+from partition.assignment import open_node_shards
 from partition.errors import InputError, ParameterError
 
 __all__ = ["Placement", "read_node_shards", "fnv1a64", "string_key_hash"]
@@ -662,35 +660,11 @@ def _repeat_error(name, ids, key, where):
 
 def _read(path):
     """``(name, ids, shards, where)`` of a node,shard file; repeated nodes are not checked."""
-    name = os.fspath(path)
-    if os.path.isdir(name):  # a Parquet dataset folder, as the Spark engine writes
-        try:
-            table = pq.read_table(name)
-        except (pa.ArrowException, OSError) as exc:
-            raise InputError(name, f"is not a readable Parquet folder ({exc})") from None
-        raw = None
-    else:
-        try:
-            with open(name, "rb") as fh:
-                raw = fh.read()
-        except FileNotFoundError:
-            raise InputError(name, "no such file") from None
-        except OSError as exc:
-            raise InputError(name, f"cannot be read ({exc.strerror or exc})") from None
-    if raw is None:
+    name, table, raw = open_node_shards(path)
+    if table is not None:
         nodes, shards, where = _table_columns(name, table)
     else:
-        if raw[:2] == b"\x1f\x8b":
-            try:
-                raw = gzip.decompress(raw)
-            except (OSError, EOFError, zlib.error) as exc:
-                raise InputError(name, f"is not a valid gzip file ({exc})") from None
-        if raw[:4] == b"PAR1":
-            nodes, shards, where = _parquet_columns(name, raw)
-        elif name.lower().endswith((".parquet", ".pq")):
-            raise InputError(name, "is not a Parquet file (it lacks the PAR1 signature)")
-        else:
-            nodes, shards, where = _text_columns(name, raw)
+        nodes, shards, where = _text_columns(name, raw)
 
     def fail(row, message):
         line, prefix = where(int(row))
@@ -773,14 +747,6 @@ def _locate_bad_line(name, raw, delim, width, exc):
         if n_fields != width:
             return InputError(name, f"expected {width} fields like the header, found {n_fields}: {text[:80]!r}", i)
     return InputError(name, f"cannot be parsed ({exc})")
-
-
-def _parquet_columns(name, raw):
-    try:
-        table = pq.read_table(pa.BufferReader(raw))
-    except (pa.ArrowException, OSError) as exc:
-        raise InputError(name, f"is not a readable Parquet file ({exc})") from None
-    return _table_columns(name, table)
 
 
 def _table_columns(name, table):
