@@ -36,7 +36,7 @@ from scipy.sparse.csgraph import breadth_first_order, maximum_flow
 
 from partition.errors import ParameterError
 from partition.refine.rebalance import rebalance_kernel
-from partition.refine.units import SCHEDULES, check_partition, edge_cut, fixed_point_weights, pair_rounds, shard_index
+from partition.refine.units import SCHEDULES, fixed_point_weights, refine_pairs, shard_index
 
 __all__ = ["boundary_region", "pair_min_cut", "flow_pair", "refine_flow"]
 
@@ -315,31 +315,17 @@ def refine_flow(graph, parts, rule, schedule="round_robin", max_rounds=None, see
     if int(layers) < 1 or not region > 0:
         raise ParameterError(f"layers must be >= 1 and region > 0, got {layers!r} and {region!r}")
     k = rule.k
-    parts = check_partition(graph, parts, k).copy()
-    if weights is None:
-        weights, scale = fixed_point_weights(graph)
-    else:
-        scale = 1
-    cut_before = float(edge_cut(graph, parts))
 
-    def run_round(current, pairs):
-        current = current.copy()
-        order, bounds = shard_index(current, k)
-        gains = []
-        for a, b in pairs:
-            nodes = np.sort(np.concatenate((order[bounds[a]:bounds[a + 1]], order[bounds[b]:bounds[b + 1]])))
-            gains.append(flow_pair(graph, current, a, b, nodes, rule, weights, layers, region))
-        return current, gains, [g > 0 for g in gains]
+    def make_round(weights):
+        def run_round(current, pairs):
+            current = current.copy()
+            order, bounds = shard_index(current, k)
+            gains = []
+            for a, b in pairs:
+                nodes = np.sort(np.concatenate((order[bounds[a]:bounds[a + 1]], order[bounds[b]:bounds[b + 1]])))
+                gains.append(flow_pair(graph, current, a, b, nodes, rule, weights, layers, region))
+            return current, gains, [g > 0 for g in gains]
 
-    parts, rounds = pair_rounds(graph, parts, k, weights, run_round, schedule, max_rounds, seed, tol)
-    for r in rounds:
-        r["gain"] = float(r["gain"]) / scale
-    loads = np.bincount(parts, weights=graph.node_weight_array(), minlength=k)
-    stats = {
-        "cut_before": cut_before,
-        "cut_after": float(edge_cut(graph, parts)),
-        "rounds": rounds,
-        "balanced": bool(rule.check(loads)),
-        "seconds": time.perf_counter() - t0,
-    }
-    return parts, stats
+        return run_round
+
+    return refine_pairs(graph, parts, rule, weights, make_round, schedule, max_rounds, seed, tol, t0)

@@ -50,7 +50,7 @@ from partition.refine.units import (
     fixed_point_weights,
     heap_pop,
     heap_push,
-    pair_rounds,
+    refine_pairs,
     shard_index,
 )
 
@@ -397,32 +397,18 @@ def refine_fm(graph, parts, rule, schedule="round_robin", max_rounds=None, seed=
     if schedule not in SCHEDULES:
         raise ParameterError(f"unknown schedule {schedule!r}; choose one of {', '.join(SCHEDULES)}")
     k = rule.k
-    parts = check_partition(graph, parts, k)
-    if weights is None:
-        weights, scale = fixed_point_weights(graph)
-    else:
-        scale = 1.0
-    cut_before = float(edge_cut(graph, parts))
 
-    def run_round(current, pairs):
-        new, gains = fm_round(graph, current, pairs, rule, weights, max_passes, max_stall, n_jobs, stall_fraction)
-        order, bounds = shard_index(current, k)
-        changed = [bool(np.any(new[order[bounds[a]:bounds[a + 1]]] != a)
-                        or np.any(new[order[bounds[b]:bounds[b + 1]]] != b)) for a, b in pairs]
-        return new, gains, changed
+    def make_round(weights):
+        def run_round(current, pairs):
+            new, gains = fm_round(graph, current, pairs, rule, weights, max_passes, max_stall, n_jobs, stall_fraction)
+            order, bounds = shard_index(current, k)
+            changed = [bool(np.any(new[order[bounds[a]:bounds[a + 1]]] != a)
+                            or np.any(new[order[bounds[b]:bounds[b + 1]]] != b)) for a, b in pairs]
+            return new, gains, changed
 
-    parts, rounds = pair_rounds(graph, parts, k, weights, run_round, schedule, max_rounds, seed, tol)
-    for r in rounds:
-        r["gain"] = float(r["gain"]) / scale
-    loads = np.bincount(parts, weights=graph.node_weight_array(), minlength=k)
-    stats = {
-        "cut_before": cut_before,
-        "cut_after": float(edge_cut(graph, parts)),
-        "rounds": rounds,
-        "balanced": bool(rule.check(loads)),
-        "seconds": time.perf_counter() - t0,
-    }
-    return parts, stats
+        return run_round
+
+    return refine_pairs(graph, parts, rule, weights, make_round, schedule, max_rounds, seed, tol, t0)
 
 
 def refine_fm_kway(graph, parts, rule, max_passes=4, max_stall=1000, rescan_degree=64, weights=None):

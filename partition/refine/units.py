@@ -11,6 +11,8 @@ kept in two arrays so numba kernels can own it.
 
 from __future__ import annotations
 
+import time
+
 import numba
 import numpy as np
 
@@ -19,6 +21,7 @@ from partition.rules import AFFINITY_SCALE, quantise
 
 __all__ = [
     "settle",
+    "refine_pairs",
     "heap_push",
     "heap_pop",
     "fixed_point_weights",
@@ -252,3 +255,52 @@ def pair_rounds(graph, parts, k, weights, run_round, schedule="round_robin", max
         if low >= 2:
             break
     return parts, rounds
+
+
+def refine_pairs(graph, parts, rule, weights, make_round, schedule="round_robin", max_rounds=None, seed=0, tol=0.0,
+                 t0=None):
+    """A pairwise refinement step end to end: fixed-point weights, :func:`pair_rounds`, statistics.
+
+    Parameters
+    ----------
+    graph : Graph
+    parts : ndarray of int64
+        Checked with :func:`check_partition` and copied.
+    rule : partition.balance.BalanceRule
+    weights : ndarray of int64 or None
+        Integer edge weights; ``None``: :func:`fixed_point_weights` (the
+        statistics' gains are then divided by its scale).
+    make_round : callable
+        ``make_round(weights) -> run_round`` for :func:`pair_rounds`.
+    schedule, max_rounds, seed, tol
+        As :func:`pair_rounds`.
+    t0 : float or None
+        ``time.perf_counter()`` when the step started (default: now).
+
+    Returns
+    -------
+    parts : ndarray of int64
+    stats : dict
+        ``cut_before``, ``cut_after`` (original weights), ``rounds`` (pairs and
+        gain of each round), ``balanced`` (the rule holds at the end), ``seconds``.
+    """
+    t0 = time.perf_counter() if t0 is None else t0
+    k = rule.k
+    parts = check_partition(graph, parts, k).copy()
+    if weights is None:
+        weights, scale = fixed_point_weights(graph)
+    else:
+        scale = 1.0
+    cut_before = float(edge_cut(graph, parts))
+    parts, rounds = pair_rounds(graph, parts, k, weights, make_round(weights), schedule, max_rounds, seed, tol)
+    for r in rounds:
+        r["gain"] = float(r["gain"]) / scale
+    loads = np.bincount(parts, weights=graph.node_weight_array(), minlength=k)
+    stats = {
+        "cut_before": cut_before,
+        "cut_after": float(edge_cut(graph, parts)),
+        "rounds": rounds,
+        "balanced": bool(rule.check(loads)),
+        "seconds": time.perf_counter() - t0,
+    }
+    return parts, stats
