@@ -142,9 +142,13 @@ def test_affinity_and_hierarchy_match_memory(spark, mixed_graph, tmp_path):
                          sort=["u", "v"])
         assert np.array_equal(split["aff"], edge_affinity(g2, method, hub_cap=20)[up2])
     # collect_edges=0: every round runs as Spark jobs (pointer jumping, contraction)
-    h = build_hierarchy_df(spark, aff, sg.n, seed=4, work=tmp_path, collect_edges=0)
+    rows = []
+    h = build_hierarchy_df(spark, aff, sg.n, seed=4, work=tmp_path, collect_edges=0, progress=rows.append)
     hr = build_hierarchy(g, ref, seed=4)
     assert h.sizes == hr.sizes and h.edges == hr.edges
+    # one progress row per round, round 0 being the affinity edges written: clusters and edges left after each
+    assert [r["stage"] for r in rows] == [f"hierarchy round {i}" for i in range(len(hr.sizes))]
+    assert [(r["clusters"], r["edges"]) for r in rows] == list(zip(hr.sizes, hr.edges))
     for x, y in zip(h.parents, hr.parents):
         assert np.array_equal(x, y)
     for x, y in zip(h.picked, hr.picked):

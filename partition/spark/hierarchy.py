@@ -218,6 +218,7 @@ def build_hierarchy_df(spark, aff, n, seed=0, linkage="sum", work=None, resume=F
         shutil.rmtree(work / "hierarchy")  # a fresh run never trusts an older run's rounds
     start = last_round(work) if resume else -1
     if start < 0:
+        t = time.perf_counter()
         describe(spark, "hierarchy: edges")
         rd = _round_dir(work, 0)
         rd.mkdir(parents=True, exist_ok=True)
@@ -228,6 +229,9 @@ def build_hierarchy_df(spark, aff, n, seed=0, linkage="sum", work=None, resume=F
         m = edges.count()
         write_text(_marker(work, 0), json.dumps({"round": 0, "clusters": n, "edges": int(m)}))
         start = 0
+        if progress is not None:  # round 0: the edge affinities computed and written (triangle tasks)
+            progress({"stage": "hierarchy round 0", "clusters": n, "edges": int(m),
+                      "seconds": round(time.perf_counter() - t, 3), "where": "spark: edge affinities"})
     info = json.loads(_marker(work, 0).read_text())
     h.edges.append(int(info["edges"]))
     c = n
