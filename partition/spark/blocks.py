@@ -26,6 +26,7 @@ import numpy as np
 __all__ = ["EdgeBlocks", "BLOCK_EDGES"]
 
 BLOCK_EDGES = 1 << 22  # edges per block (int32 ends: 32 MB per block)
+_EMPTY = np.empty(0, dtype=np.int64)
 
 
 def _pack(block, unit_w, idtype):
@@ -66,8 +67,8 @@ class EdgeBlocks:
     n : int
         Number of nodes (ids ``0 .. n-1``).
     unit_w : bool
-        All weights are 1: blocks keep no weight array, and the kernels get
-        ones (``weights`` of :meth:`unit_round`'s kernel is then ``None``).
+        All weights are 1: blocks keep no weight array (``w`` is ``None`` in
+        :meth:`sum_over` and :meth:`route`, an empty array in :meth:`unit_round`).
     block : int
         Edges per block.
     """
@@ -171,8 +172,8 @@ class EdgeBlocks:
             got = {}
             for unit, chunk in it:
                 got.setdefault(unit, []).append(chunk)
-            for unit, chunks in sorted(got.items()):
-                yield unit, run(unit, chunks, a)
+            for unit in sorted(got):
+                yield unit, run(unit, got.pop(unit), a)  # run may free the chunks once it has joined them
 
         try:
             res = (self.rdd.mapPartitions(send).partitionBy(int(n_units), lambda unit: unit)
@@ -191,11 +192,11 @@ class EdgeBlocks:
         pairs : list of (int, int)
             Disjoint shard pairs; pair ``i`` is unit ``i``.
         kernel : callable
-            ``kernel(unit, nodes, x, y, w, sy, nwy, parts_of_nodes, nw_of_nodes)``
-            with ``nodes`` the ids of the pair's shards in increasing order and
-            ``x → y`` every directed edge leaving them (``w`` its weight, ``sy``
-            and ``nwy`` the shard and weight of ``y``); returns
-            ``(nodes, shards, gain)``.
+            ``kernel(unit, nodes, x, y, w, parts, node_weights)`` with
+            ``nodes`` the ids of the pair's shards in increasing order, ``x →
+            y`` every directed edge leaving them (the blocks' id type), ``w``
+            their weights (an empty array for unit weights) and the whole
+            shard and node-weight arrays; returns ``(nodes, shards, gain)``.
 
         Returns
         -------
@@ -257,13 +258,11 @@ def _call(kernel, unit, pair, p, nw, chunks):
     a, b = pair
     nodes = np.flatnonzero((p == a) | (p == b)).astype(np.int64)
     if chunks:
-        x = np.concatenate([c[0] for c in chunks]).astype(np.int64)
-        y = np.concatenate([c[1] for c in chunks]).astype(np.int64)
-        w = None if chunks[0][2] is None else np.concatenate([c[2] for c in chunks]).astype(np.int64)
+        x = np.concatenate([c[0] for c in chunks])
+        y = np.concatenate([c[1] for c in chunks])
+        w = _EMPTY if chunks[0][2] is None else np.concatenate([c[2] for c in chunks]).astype(np.int64)
+        chunks.clear()  # the joined arrays replace them (a unit can hold tens of millions of edges)
     else:
-        x = y = np.empty(0, dtype=np.int64)
-        w = None
-    if w is None:
-        w = np.ones(x.shape[0], dtype=np.int64)
-    out_nodes, out_shards, gain = kernel(unit, nodes, x, y, w, p[y], nw[y], p[nodes], nw[nodes])
+        x = y = w = _EMPTY
+    out_nodes, out_shards, gain = kernel(unit, nodes, x, y, w, p, nw)
     return np.asarray(out_nodes, dtype=np.int64), np.asarray(out_shards, dtype=np.int64), int(gain)

@@ -76,19 +76,26 @@ def int_weights(spark, sg, kind):
     return sg.edges.withColumn("wi", F.bround(F.col("w") * float(AFFINITY_SCALE), 0).cast("long")), False
 
 
-def _local(gn, gshard, gnw, ex, ey, w, sy, nwy, n=None):
+def _local(gn, ex, ey, w, shard, nw, n=None):
     """Local CSR over a unit's nodes ``gn`` and their neighbours, ids in increasing global order.
 
-    Returns ``ids`` (global id of each local node), ``indptr``, ``indices``
-    (int32, each row's neighbours in increasing order), the weights in CSR
-    order, and the shard and weight of every local node.
+    ``ex → ey`` are the directed edges leaving ``gn`` (int32 or int64), ``w``
+    their weights (an empty array: all ones), ``shard`` and ``nw`` the
+    whole-graph shard and node-weight arrays. Returns ``ids`` (global id of
+    each local node), ``indptr``, ``indices`` (int32, each row's neighbours in
+    increasing order), the weights in CSR order (int64), and the shard and
+    weight of every local node. About 16 bytes per directed edge besides the
+    inputs.
     """
+    if ex.shape[0] >= 2**31:
+        raise ValueError(f"a refinement unit with {ex.shape[0]} directed edges is too large (limit 2**31 - 1)")
     n = int(max(gn.max(initial=-1), ey.max(initial=-1)) + 1) if n is None else int(n)
-    return _local_csr(n, gn, gshard, gnw, ex, ey, w, sy, nwy)
+    ids, indptr, indices, wl = _local_csr(n, gn, ex, ey, w)
+    return ids, indptr, indices, wl, shard[ids], nw[ids]
 
 
 @numba.njit(cache=True, nogil=True)
-def _local_csr(n, gn, gshard, gnw, ex, ey, w, sy, nwy):
+def _local_csr(n, gn, ex, ey, w):
     # global → local ids by one scan over the marked ids (increasing order), then
     # two stable counting sorts (by neighbour, then by row): rows in increasing
     # local id, each row's neighbours increasing — lexsort((ly, lx)) order
@@ -111,47 +118,39 @@ def _local_csr(n, gn, gshard, gnw, ex, ey, w, sy, nwy):
             ids[size] = g
             size += 1
     m = ex.shape[0]
-    lx = np.empty(m, dtype=np.int64)
-    ly = np.empty(m, dtype=np.int64)
-    for i in range(m):
-        lx[i] = lid[ex[i]]
-        ly[i] = lid[ey[i]]
     start = np.zeros(size + 1, dtype=np.int64)
     for i in range(m):
-        start[ly[i] + 1] += 1
+        start[lid[ey[i]] + 1] += 1
     for j in range(size):
         start[j + 1] += start[j]
-    by_y = np.empty(m, dtype=np.int64)
+    by_y = np.empty(m, dtype=np.int32)  # m < 2**31 (checked by _local)
     for i in range(m):
-        by_y[start[ly[i]]] = i
-        start[ly[i]] += 1
+        y = lid[ey[i]]
+        by_y[start[y]] = i
+        start[y] += 1
     indptr = np.zeros(size + 1, dtype=np.int64)
     for i in range(m):
-        indptr[lx[i] + 1] += 1
+        indptr[lid[ex[i]] + 1] += 1
     for j in range(size):
         indptr[j + 1] += indptr[j]
     fill = indptr[:-1].copy()
     indices = np.empty(m, dtype=np.int32)
-    wl = np.empty(m, dtype=np.int64)
-    parts = np.full(size, -1, dtype=np.int64)
-    nwl = np.zeros(size, dtype=np.int64)
+    wl = np.ones(m, dtype=np.int64)
+    unit = w.shape[0] == 0
     for t in range(m):
         i = by_y[t]
-        q = fill[lx[i]]
-        fill[lx[i]] += 1
-        indices[q] = ly[i]
-        wl[q] = w[i]
-        parts[ly[i]] = sy[i]
-        nwl[ly[i]] = nwy[i]
-    for i in range(gn.shape[0]):
-        parts[lid[gn[i]]] = gshard[i]
-        nwl[lid[gn[i]]] = gnw[i]
-    return ids, indptr, indices, wl, parts, nwl
+        x = lid[ex[i]]
+        q = fill[x]
+        fill[x] += 1
+        indices[q] = lid[ey[i]]
+        if not unit:
+            wl[q] = w[i]
+    return ids, indptr, indices, wl
 
 
-def _sides(a, b, gn, gshard, gnw, ex, ey, w, sy, nwy):
+def _sides(a, b, gn, ex, ey, w, shard, nw):
     """:func:`_local` plus the local ids of the unit's nodes in shard ``a`` and in shard ``b``."""
-    ids, indptr, indices, lw, lp, lnw = _local(gn, gshard, gnw, ex, ey, w, sy, nwy)
+    ids, indptr, indices, lw, lp, lnw = _local(gn, ex, ey, w, shard, nw)
     loc = np.searchsorted(ids, gn)
     return ids, indptr, indices, lw, lp, lnw, loc[lp[loc] == a], loc[lp[loc] == b]
 
@@ -222,11 +221,11 @@ def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, st
     nw = np.asarray(nw, dtype=np.int64)
     settled = np.zeros((k, k), dtype=bool)
 
-    def kernel(unit, gn, ex, ey, w, sy, nwy, gshard, gnw):
+    def kernel(unit, gn, ex, ey, w, shard, weight):
         a, b = pairs_now[unit]
         if gn.shape[0] == 0:
             return _EMPTY, _EMPTY, 0
-        ids, indptr, indices, lw, lp, lnw, la, lb = _sides(a, b, gn, gshard, gnw, ex, ey, w, sy, nwy)
+        ids, indptr, indices, lw, lp, lnw, la, lb = _sides(a, b, gn, ex, ey, w, shard, weight)
         mov = np.concatenate((la, lb))
         stall = max_stall if max_stall < 0 else max(int(max_stall), int(stall_fraction * mov.shape[0]))
         new, g = fm_pair(indptr, indices, lw, lnw, lp, a, b, mov, cap, cap, floor, floor, max_passes, stall)
@@ -302,11 +301,11 @@ def spark_swaps(spark, sg, parts, rule, node_weights, max_rounds=20, tol=1e-3, i
     nw = np.ones(parts.shape[0], dtype=np.int64) if node_weights is None else np.asarray(node_weights, np.int64)
     pairs_now = []
 
-    def kernel(unit, gn, ex, ey, w, sy, nwy, gshard, gnw):
+    def kernel(unit, gn, ex, ey, w, shard, weight):
         a, b = pairs_now[unit]
         if gn.shape[0] == 0:
             return _EMPTY, _EMPTY, 0
-        ids, indptr, indices, lw, lp, lnw, la, lb = _sides(a, b, gn, gshard, gnw, ex, ey, w, sy, nwy)
+        ids, indptr, indices, lw, lp, lnw, la, lb = _sides(a, b, gn, ex, ey, w, shard, weight)
         rank = np.zeros(ids.shape[0], dtype=np.int64)
         rank[la] = np.arange(la.shape[0])
         rank[lb] = np.arange(lb.shape[0])
