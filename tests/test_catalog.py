@@ -26,7 +26,7 @@ from partition.catalog import (
 )
 from partition.errors import InputError, ParameterError
 
-SHARED = Path(__file__).resolve().parents[2] / "shared" / "datasets"
+from conftest import SHARED, shared_graph_rows  # noqa: E402
 needs_shared = pytest.mark.skipif(not SHARED.is_dir(), reason=f"public graphs folder {SHARED} is absent")
 
 
@@ -48,13 +48,8 @@ def ref_degrees_sha256(graph):
 
 
 def catalog_md_rows():
-    """(file, nodes, edges, sha256 prefix) from the table of the shared folder's CATALOG.md."""
-    rows = {}
-    for line in (SHARED / "CATALOG.md").read_text(encoding="utf-8").splitlines():
-        cells = [c.strip() for c in line.strip().strip("|").split("|")]
-        if len(cells) == 7 and re.fullmatch(r"[0-9a-f]{16}", cells[6]):
-            rows[cells[0]] = (int(cells[3]), int(cells[4]), cells[6])
-    return rows
+    """(file, nodes, edges, sha256 prefix) from the graph table of the shared folder's CATALOG.md."""
+    return shared_graph_rows()
 
 
 # ----------------------------------------------------------------------------

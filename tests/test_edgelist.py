@@ -19,17 +19,12 @@ from partition.edgelist import read_graph
 from partition.errors import InputError
 from partition.graph import build_graph
 
-SHARED = Path(__file__).resolve().parents[2] / "shared" / "datasets"
+from conftest import SHARED, shared_graph_rows
 
 
 def _catalog_counts():
     """Node and edge counts from ../shared/datasets/CATALOG.md (the collections' own counts)."""
-    rows = {}
-    for line in (SHARED / "CATALOG.md").read_text().splitlines():
-        cells = [c.strip() for c in line.strip().strip("|").split("|")]
-        if len(cells) >= 7 and re.fullmatch(r"\d+", cells[3] or "") and "." in cells[0]:
-            rows[cells[0]] = (int(cells[3]), int(cells[4]))
-    return rows
+    return {name: (n, m) for name, (n, m, _) in shared_graph_rows().items()}
 
 
 def _nx_from_file(path):

@@ -23,7 +23,7 @@ from partition.errors import ParameterError
 from partition.graph import build_graph
 from partition.score import CUT_PAIRS_LIMIT, DENSE_MATRIX_MAX_K, score
 
-SHARED = Path(__file__).resolve().parents[2] / "shared" / "datasets"
+from conftest import SHARED, shared_graph_rows  # noqa: E402
 
 
 # --- helpers: the graph both ways, and networkx recounts -------------------
@@ -302,12 +302,7 @@ def test_bad_parameters(parts, k, eps):
 
 def _catalog():
     """file → (nodes, undirected edges) from ../shared/datasets/CATALOG.md."""
-    rows = {}
-    for line in (SHARED / "CATALOG.md").read_text().splitlines():
-        cells = [c.strip() for c in line.strip().strip("|").split("|")]
-        if len(cells) >= 7 and "." in cells[0] and re.fullmatch(r"\d+", cells[3]):
-            rows[cells[0]] = (int(cells[3]), int(cells[4]))
-    return rows
+    return {name: (n, m) for name, (n, m, _) in shared_graph_rows().items()}
 
 
 def _plain_read(path):
