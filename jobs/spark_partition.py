@@ -55,7 +55,7 @@ def main(argv=None):
                         report=args.report or args.output.rstrip("/") + ".report.json", work_dir=args.work_dir,
                         resume=args.resume, collect_edges=args.collect_edges, progress=progress,
                         fmt=args.graph_format, source_column=args.source_column, target_column=args.target_column,
-                        weight_column=args.weight_column, header=not args.no_header, delimiter=args.delimiter)
+                        weight_column=args.weight_column, header=args.header, delimiter=args.delimiter)
     except ShardlineError as exc:
         print(f"spark_partition: error: {exc}", file=sys.stderr)
         return 2

@@ -4,27 +4,43 @@ Formats
 -------
 ``text`` (default for any name but ``.csv``, ``.tsv``, ``.parquet``, ``.pq``)
     One edge per line, ``u v`` (``u v w`` with ``weighted=True``), fields
-    separated by whitespace, tabs or commas; lines whose first non-blank
-    character is ``#`` or ``%`` are comments; blank lines are skipped.
+    separated by blanks, tabs, commas or semicolons; lines whose first
+    non-blank character is ``#`` or ``%`` are comments; blank lines are skipped.
 ``csv`` / ``tsv`` (``.csv``, ``.tsv``)
     A header row names the columns; ``source_column``/``target_column`` pick the
     endpoints (default: the first two columns) and ``weight_column`` the weight
     (default with ``weighted=True``: the third column). ``header=False`` reads a
-    headerless file whose columns are then 1, 2, 3, ...
+    headerless file whose columns are then 1, 2, 3, ... The delimiter, when not
+    given, is the first of comma, tab, semicolon and blank (tab first for
+    ``.tsv``) that splits the first lines into the same number (≥ 2) of fields.
 ``parquet`` (``.parquet``, ``.pq``)
     Columns chosen as for CSV.
 
 Any of these may be compressed with gzip or bzip2 (recognised by content, not
-by name). Node ids are integers when every id in the file is an integer
-(int64), otherwise strings. Edge weights must be finite and >= 0. A node-weights
-file holds ``id weight`` rows (same text rules, or CSV/Parquet) with
-non-negative integer weights; it must list every node of the edge list, and
-ids it lists that have no edge are isolated nodes only with
-``allow_isolated=True`` (otherwise they are reported as unknown nodes).
+by name).
 
-Text files are parsed by pyarrow's CSV reader (the fast path); when that fails
-the file is read again line by line to name the first bad line, so every error
-names the file and the line (``row N`` for Parquet).
+Ids follow the one rule of :mod:`partition.ids`: integers only when every id
+of the file is the canonical decimal form of an int64, otherwise strings kept
+byte for byte; never floats. Text must be UTF-8; a line that is not is an
+error naming it.
+
+The header rule: a CSV/TSV file has a header unless ``header=False``; when
+``header`` is not given and its first row is all numbers, that row looks like
+data and the reader stops (pass ``header=True`` or ``False``). A text file has
+no header unless ``header=True``; when ``header`` is not given and the first
+line holds non-numeric fields where every later line is numeric (``src dst``
+above integer ids), the reader stops and asks for ``header=True`` (skip it) or
+``header=False`` (read it as an edge).
+
+Edge weights must be finite and >= 0. A node-weights file holds ``id weight``
+rows (same text rules, or CSV/Parquet) with non-negative integer weights; it
+must list every node of the edge list, and ids it lists that have no edge are
+isolated nodes only with ``allow_isolated=True`` (otherwise they are reported
+as unknown nodes).
+
+Text files are parsed by pyarrow's CSV reader into string columns (the fast
+path); when that fails the file is read again line by line to name the first
+bad line, so every error names the file and the line (``row N`` for Parquet).
 """
 
 from __future__ import annotations
@@ -40,13 +56,15 @@ import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.csv as pacsv
 
-from partition.errors import InputError
+from partition.errors import InputError, ParameterError
 from partition.graph import build_graph
+from partition.ids import canonical_ints, id_column, id_columns
 
-__all__ = ["read_graph", "read_edges", "read_node_weights", "detect_format"]
+__all__ = ["read_graph", "read_edges", "read_node_weights", "detect_format", "decode_delimiter", "sniff_delimiter",
+           "pick_columns", "SNIFFED"]
 
 _COMMENT_LINE = re.compile(rb"(?m)^[ \t]*[#%][^\n]*(?:\n|$)")
-_SPLIT = re.compile(r"[\s,]+")
+_SPLIT = re.compile(r"[\s,;]+")
 
 
 # ----------------------------------------------------------------------------
@@ -80,9 +98,11 @@ def read_graph(
     node_weights : str or path-like or None
         A node-weights file (``id weight`` rows).
     header : bool or None
-        CSV/TSV only: whether the first row is a header (default True).
+        Whether the first data line is a header; ``None``: the header rule of
+        the module docstring.
     delimiter : str or None
-        Force the field delimiter (default: detected).
+        Force the field delimiter (default: detected); escapes such as ``\\t``
+        and the names ``tab``, ``comma``, ``semicolon``, ``space`` are accepted.
     allow_isolated : bool
         Accept ids in the node-weights file that have no edge, as isolated nodes.
 
@@ -139,42 +159,39 @@ def read_edges(
     header=None,
     delimiter=None,
 ):
-    """Read raw edge columns ``(src, dst, weights_or_None)`` without normalising."""
+    """Read raw edge columns ``(src, dst, weights_or_None)`` without normalising.
+
+    Ids follow :mod:`partition.ids`; ``header`` is ``None`` (the rule of the
+    module docstring), ``True`` (the first data line names the columns) or
+    ``False`` (it is data).
+    """
     kind = detect_format(path, fmt)
-    if kind == "parquet":
-        cols, names, row_to_line = _read_parquet(path, [source_column, target_column, weight_column], weighted)
-    elif kind in ("csv", "tsv"):
-        delim = delimiter or ("," if kind == "csv" else "\t")
-        cols, names, row_to_line = _read_headed(
-            path, [source_column, target_column, weight_column], weighted, delim, header is not False
-        )
-    else:
-        ncols = 3 if weighted else 2
-        cols, row_to_line = _read_text(path, ncols, delimiter, ["int_or_str", "int_or_str", "float"][:ncols])
-    src, dst = _id_columns(cols[0], cols[1])
+    wanted = [source_column, target_column, weight_column]
+    cols, names, row_to_line = _columns(path, kind, wanted, weighted, header, delimiter, 3 if weighted else 2,
+                                       ("source", "target", "weight"))
+    src, dst = id_columns(cols[:2], path, names[:2])
+    if kind == "text" and header is None and src.dtype == object:
+        _header_check(path, cols[:2], row_to_line)
     w = None
     if weighted:
-        w = _float_weights(cols[2], path, row_to_line, what="edge weight")
+        w = _float_weights(cols[2], path, row_to_line, what="edge weight", header_rule=kind == "text" and header is None)
     return src, dst, w
 
 
-def read_node_weights(path, fmt="auto"):
+def read_node_weights(path, fmt="auto", header=None, delimiter=None):
     """Read a node-weights file: returns ``(ids, weights, row_to_line)``.
 
-    Weights are non-negative integers; an id listed twice is an error.
+    Weights are non-negative integers; an id listed twice is an error. Ids and
+    the header follow the rules of :func:`read_edges`.
     """
     kind = detect_format(path, fmt)
-    if kind == "parquet":
-        cols, _, row_to_line = _read_parquet(path, [None, None, None], False, ncols=2)
-    elif kind in ("csv", "tsv"):
-        cols, _, row_to_line = _read_headed(path, [None, None, None], False, "," if kind == "csv" else "\t", True, ncols=2)
-    else:
-        cols, row_to_line = _read_text(path, 2, None, ["int_or_str", "int"])
-    ids = cols[0]
-    if len(ids) == 0:
+    cols, names, row_to_line = _columns(path, kind, [None, None, None], False, header, delimiter, 2, ("node", "weight"))
+    if len(cols[0]) == 0:
         raise InputError(path, "the node-weights file lists no nodes")
-    weights = _int_weights(cols[1], path, row_to_line)
-    ids = _as_ids(ids)
+    ids = id_column(cols[0], path, names[0])
+    if kind == "text" and header is None and ids.dtype == object:
+        _header_check(path, cols[:1], row_to_line)
+    weights = _int_weights(cols[1], path, row_to_line, header_rule=kind == "text" and header is None)
     order = np.argsort(ids, kind="stable")
     sorted_ids = ids[order]
     dup = np.flatnonzero(sorted_ids[1:] == sorted_ids[:-1])
@@ -182,6 +199,76 @@ def read_node_weights(path, fmt="auto"):
         row = int(order[dup[0] + 1])
         raise InputError(path, f"node {ids[row]!s} is listed twice", row_to_line(row))
     return ids, weights, row_to_line
+
+
+def decode_delimiter(text):
+    """The one-character delimiter a user typed: ``\\t``, ``tab``, ``comma``, ``semicolon``, ``space``, ``\\xHH``.
+
+    Raises
+    ------
+    ParameterError
+        Anything that is not one character once decoded.
+    """
+    if text is None:
+        return None
+    named = {"tab": "\t", "comma": ",", "semicolon": ";", "space": " ", "pipe": "|"}
+    value = named.get(text.lower(), text)
+    if len(value) > 1 and value.startswith("\\"):
+        try:
+            value = value.encode("ascii").decode("unicode_escape")
+        except (UnicodeDecodeError, UnicodeEncodeError):
+            pass
+    if len(value) != 1 or value in "\n\r\"":
+        raise ParameterError(f"--delimiter must be one character (or \\t, tab, comma, semicolon, space), got {text!r}")
+    return value
+
+
+SNIFFED = (",", "\t", ";", " ")
+"""Delimiters tried, in order, when a CSV/TSV file's delimiter is not given (TSV tries tab first)."""
+
+
+def sniff_delimiter(lines, kind):
+    """The delimiter of a CSV/TSV file from its first data lines (decoded text).
+
+    The first of :data:`SNIFFED` (tab first for ``tsv``) that splits every
+    given line into the same number (at least two) of fields; the format's own
+    delimiter when none does, so the error that follows names it.
+    """
+    import csv
+
+    default = "\t" if kind == "tsv" else ","
+    order = [default] + [d for d in SNIFFED if d != default]
+    for delim in order:
+        widths = {len(next(csv.reader([line], delimiter=delim), [])) for line in lines}
+        if len(widths) == 1 and widths.pop() >= 2:
+            return delim
+    return default
+
+
+def _columns(path, kind, wanted, weighted, header, delimiter, ncols, labels):
+    """The chosen columns of any format as pyarrow columns (text: strings), their names and a row → line map."""
+    delimiter = decode_delimiter(delimiter)
+    if kind == "parquet":
+        return _read_parquet(path, wanted, weighted, ncols)
+    if kind in ("csv", "tsv"):
+        return _read_headed(path, wanted, weighted, delimiter, kind, header, ncols)
+    cols, row_to_line = _read_text(path, ncols, delimiter, header)
+    return cols, list(labels), row_to_line
+
+
+def _header_check(path, id_cols, row_to_line):
+    """Refuse a first line of text ids above lines of integer ids: it looks like a header (issue of the rule)."""
+    if len(id_cols[0]) < 2:
+        return
+    if all(canonical_ints(c.slice(1)) is not None for c in id_cols) and any(
+            canonical_ints(c.slice(0, 1)) is None for c in id_cols):
+        _refuse_header(path, [c[0].as_py() for c in id_cols], row_to_line(0))
+
+
+def _refuse_header(path, fields, line):
+    shown = " ".join(map(str, fields))
+    raise InputError(path, f"the first line {shown!r} looks like a header (every later line is numeric): pass "
+                           "--header to skip it, or --no-header to read it as data", line)
 
 
 # ----------------------------------------------------------------------------
@@ -204,23 +291,26 @@ def _read_bytes(path):
             raw = bz2.decompress(raw)
     except (OSError, EOFError, ValueError) as exc:
         raise InputError(path, f"is not a valid compressed file: {exc}") from None
+    if b"\r" in raw:
+        raw = raw.replace(b"\r\n", b"\n").replace(b"\r", b"\n")
     return raw
 
 
-def _read_text(path, ncols, delimiter, kinds):
-    """Parse a headerless text table; returns (pyarrow columns, row_to_line)."""
+def _read_text(path, ncols, delimiter, header):
+    """Parse a text table into ``ncols`` string columns; returns (columns, row_to_line)."""
     raw = _read_bytes(path)
-    if b"\r" in raw:
-        raw = raw.replace(b"\r\n", b"\n").replace(b"\r", b"\n")
     data = _COMMENT_LINE.sub(b"", raw) if (b"#" in raw or b"%" in raw) else raw
     row_to_line = _RowLines(raw)
     if not data.strip():
-        return [pa.array([], pa.int64()) for _ in range(ncols)], row_to_line
+        return [pa.array([], pa.string()) for _ in range(ncols)], row_to_line
     delim = delimiter or _detect_delimiter(data)
     try:
-        cols = _fast_text(data, ncols, delim, kinds)
+        cols = _fast_text(data, ncols, delim)
     except (pa.ArrowInvalid, pa.ArrowTypeError, _FallBack):
-        cols = _slow_text(raw, ncols, path, kinds)
+        cols = _slow_text(raw, ncols, path, delimiter)
+    if header:
+        cols = [c.slice(1) for c in cols]
+        row_to_line = _HeadedRowLines(raw, 1)
     return cols, row_to_line
 
 
@@ -230,78 +320,50 @@ class _FallBack(Exception):
 
 def _detect_delimiter(data):
     first = data[: data.find(b"\n")] if b"\n" in data else data
-    if b"\t" in first:
-        return "\t"
-    if b"," in first:
-        return ","
+    for delim in (b"\t", b",", b";"):
+        if delim in first:
+            return delim.decode()
     return " "
 
 
-def _fast_text(data, ncols, delim, kinds):
+def _fast_text(data, ncols, delim):
     names = [f"c{i}" for i in range(ncols)]
-    types = {}
-    for name, kind in zip(names, kinds):
-        if kind == "float":
-            types[name] = pa.float64()
-        elif kind == "int":
-            types[name] = pa.int64()
     table = pacsv.read_csv(
         io.BytesIO(data),
         read_options=pacsv.ReadOptions(column_names=names, block_size=1 << 24, use_threads=True),
         parse_options=pacsv.ParseOptions(delimiter=delim, ignore_empty_lines=True, quote_char=False),
-        convert_options=pacsv.ConvertOptions(column_types=types, strings_can_be_null=False, quoted_strings_can_be_null=False),
+        convert_options=pacsv.ConvertOptions(column_types={name: pa.string() for name in names},
+                                             strings_can_be_null=False, quoted_strings_can_be_null=False),
     )
-    cols = [table.column(i) for i in range(ncols)]
+    cols = [table.column(i).combine_chunks() for i in range(ncols)]
     for col in cols:
-        if col.null_count:
-            raise _FallBack()
-        if pa.types.is_string(col.type) and pc.any(pc.equal(col, "")).as_py():
+        if col.null_count or pc.any(pc.equal(col, "")).as_py():
             raise _FallBack()
     return cols
 
 
-def _slow_text(raw, ncols, path, kinds):
-    """Line-by-line parser: correct for any whitespace; names the first bad line."""
+def _slow_text(raw, ncols, path, delimiter=None):
+    """Line-by-line parser: correct for any run of separators; names the first bad line."""
     out = [[] for _ in range(ncols)]
-    text = raw.decode("utf-8", errors="replace")
-    for lineno, line in enumerate(text.split("\n"), start=1):
-        s = line.strip()
-        if not s or s[0] in "#%":
+    split = _SPLIT if delimiter is None else re.compile(rf"\s*{re.escape(delimiter)}\s*" if delimiter.strip() else r"\s+")
+    for lineno, chunk in enumerate(raw.split(b"\n"), start=1):
+        s = chunk.strip()
+        if not s or s[:1] in (b"#", b"%"):
             continue
-        fields = [f for f in _SPLIT.split(s) if f]
+        try:
+            s = s.decode("utf-8")
+        except UnicodeDecodeError as exc:
+            raise InputError(path, f"is not valid UTF-8 text (byte 0x{s[exc.start]:02x} at column "
+                                   f"{exc.start + 1}); ids must be UTF-8 text", lineno) from None
+        fields = [f for f in split.split(s) if f]
         if len(fields) != ncols:
             hint = ""
             if ncols == 2 and len(fields) == 3:
                 hint = "; pass --weighted to read the third field as an edge weight"
             raise InputError(path, f"expected {ncols} fields, found {len(fields)}: {s[:80]!r}{hint}", lineno)
-        for i, (field, kind) in enumerate(zip(fields, kinds)):
-            if kind == "float":
-                try:
-                    field = float(field)
-                except ValueError:
-                    raise InputError(path, f"weight {field!r} is not a number", lineno) from None
-            elif kind == "int":
-                try:
-                    field = int(field)
-                except ValueError:
-                    raise InputError(path, f"weight {field!r} is not a whole number", lineno) from None
+        for i, field in enumerate(fields):
             out[i].append(field)
-    cols = []
-    for values, kind in zip(out, kinds):
-        if kind == "float":
-            cols.append(pa.array(values, pa.float64()))
-        elif kind == "int":
-            cols.append(pa.array(values, pa.int64()))
-        else:
-            cols.append(_ids_from_strings(values))
-    return cols
-
-
-def _ids_from_strings(values):
-    try:
-        return pa.array([int(v) for v in values], pa.int64())
-    except (ValueError, OverflowError):
-        return pa.array(values, pa.string())
+    return [pa.array(values, pa.string()) for values in out]
 
 
 class _RowLines:
@@ -322,61 +384,6 @@ class _RowLines:
         return None
 
 
-# ----------------------------------------------------------------------------
-# csv/tsv with header, parquet
-# ----------------------------------------------------------------------------
-def _pick_columns(path, available, wanted, weighted, ncols):
-    chosen = []
-    for i, name in enumerate(wanted[:ncols]):
-        if i == 2 and not weighted:
-            break
-        if name is None:
-            if i >= len(available):
-                raise InputError(path, f"expected at least {i + 1} columns, found {len(available)}")
-            chosen.append(available[i])
-        elif name not in available:
-            raise InputError(path, f"no column named {name!r}; the columns are {', '.join(map(str, available))}")
-        else:
-            chosen.append(name)
-    return chosen
-
-
-def _read_headed(path, wanted, weighted, delim, header, ncols=3):
-    raw = _read_bytes(path)
-    if b"\r" in raw:
-        raw = raw.replace(b"\r\n", b"\n").replace(b"\r", b"\n")
-    data = _COMMENT_LINE.sub(b"", raw) if (b"#" in raw or b"%" in raw) else raw
-    if not data.strip():
-        raise InputError(path, "the file is empty")
-    first = data[: data.find(b"\n")] if b"\n" in data else data
-    width = len(first.split(delim.encode()))
-    if header:
-        names = [s.strip() for s in first.decode("utf-8", "replace").split(delim)]
-        body = data[len(first) + 1 :]
-    else:
-        names = [str(i + 1) for i in range(width)]
-        body = data
-    chosen = _pick_columns(path, names, wanted, weighted, ncols)
-    raw_body_start = 1 if header else 0
-    row_to_line = _HeadedRowLines(raw, raw_body_start)
-    try:
-        table = pacsv.read_csv(
-            io.BytesIO(body),
-            read_options=pacsv.ReadOptions(column_names=names, block_size=1 << 24),
-            parse_options=pacsv.ParseOptions(delimiter=delim, ignore_empty_lines=True),
-            convert_options=pacsv.ConvertOptions(include_columns=chosen, strings_can_be_null=False),
-        )
-    except (pa.ArrowInvalid, pa.ArrowTypeError) as exc:
-        line = _first_bad_csv_line(raw, delim, len(names), raw_body_start)
-        raise InputError(path, f"malformed row: expected {len(names)} fields ({exc.__class__.__name__})", line) from None
-    cols = [table.column(c) for c in chosen]
-    for c, col in zip(chosen, cols):
-        if col.null_count:
-            row = int(np.flatnonzero(col.is_null().to_numpy(zero_copy_only=False))[0])
-            raise InputError(path, f"empty value in column {c!r}", row_to_line(row))
-    return cols, chosen, row_to_line
-
-
 class _HeadedRowLines(_RowLines):
     def __init__(self, raw, skip):
         super().__init__(raw)
@@ -386,7 +393,111 @@ class _HeadedRowLines(_RowLines):
         return super().__call__(row + self.skip)
 
 
+# ----------------------------------------------------------------------------
+# csv/tsv with header, parquet
+# ----------------------------------------------------------------------------
+def pick_columns(path, available, wanted, weighted, ncols, delimiter=None):
+    """The names of the chosen columns: by name when given, else by position (source, target, weight)."""
+    chosen = []
+    for i, name in enumerate(wanted[:ncols]):
+        if i == 2 and not weighted:
+            break
+        if name is None:
+            if i >= len(available):
+                hint = ""
+                if delimiter is not None:
+                    hint = (f" with the delimiter {delimiter!r}; pass --delimiter to name another "
+                            "(for example --delimiter ';' or --delimiter '\\t')")
+                raise InputError(path, f"expected at least {i + 1} columns, found {len(available)}{hint}")
+            chosen.append(available[i])
+        elif name not in available:
+            raise InputError(path, f"no column named {name!r}; the columns are {', '.join(map(str, available))}")
+        else:
+            chosen.append(name)
+    return chosen
+
+
+def _first_lines(data, count=5):
+    """The first ``count`` data lines of ``data`` (comments already removed), decoded."""
+    out = []
+    for chunk in data.split(b"\n", 64)[:64]:
+        if chunk.strip():
+            out.append(chunk.decode("utf-8", "replace"))
+            if len(out) == count:
+                break
+    return out
+
+
+def _read_headed(path, wanted, weighted, delim, kind, header, ncols=3):
+    raw = _read_bytes(path)
+    data = _COMMENT_LINE.sub(b"", raw) if (b"#" in raw or b"%" in raw) else raw
+    data = data.lstrip(b"\n")
+    if not data.strip():
+        raise InputError(path, "the file is empty")
+    delim = delim or sniff_delimiter(_first_lines(data), kind)
+    first = data[: data.find(b"\n")] if b"\n" in data else data
+    first_line = _first_data_line(raw)
+    try:
+        first_text = first.decode("utf-8")
+    except UnicodeDecodeError:
+        raise InputError(path, "is not valid UTF-8 text", first_line) from None
+    import csv
+
+    head = next(csv.reader([first_text], delimiter=delim), [])
+    width = len(head)
+    if header is None and width and all(_is_number(f) for f in head):
+        raise InputError(path, f"the first row {first_text.strip()[:80]!r} looks like data, not a header: pass "
+                               "--no-header to read it as data (or --header if it names the columns)", first_line)
+    if header is not False:
+        names = [s.strip() for s in head]
+        body = data[len(first) + 1 :]
+    else:
+        names = [str(i + 1) for i in range(width)]
+        body = data
+    chosen = pick_columns(path, names, wanted, weighted, ncols, delim)
+    raw_body_start = 0 if header is False else 1
+    row_to_line = _HeadedRowLines(raw, raw_body_start)
+    try:
+        table = pacsv.read_csv(
+            io.BytesIO(body),
+            read_options=pacsv.ReadOptions(column_names=names, block_size=1 << 24),
+            parse_options=pacsv.ParseOptions(delimiter=delim, ignore_empty_lines=True),
+            convert_options=pacsv.ConvertOptions(include_columns=chosen, column_types={c: pa.string() for c in chosen},
+                                                 strings_can_be_null=False),
+        )
+    except (pa.ArrowInvalid, pa.ArrowTypeError) as exc:
+        line, why = _first_bad_csv_line(raw, delim, len(names), raw_body_start)
+        raise InputError(path, why or f"malformed row: expected {len(names)} fields ({exc.__class__.__name__})",
+                         line) from None
+    cols = [table.column(c).combine_chunks() for c in chosen]
+    for c, col in zip(chosen, cols):
+        empty = pc.equal(pc.utf8_length(col), 0) if len(col) else None
+        if empty is not None and pc.any(empty).as_py():
+            row = int(np.flatnonzero(empty.to_numpy(zero_copy_only=False))[0])
+            raise InputError(path, f"empty value in column {c!r}", row_to_line(row))
+    return cols, chosen, row_to_line
+
+
+def _is_number(text):
+    try:
+        float(text)
+    except ValueError:
+        return False
+    return True
+
+
+def _first_data_line(raw):
+    for lineno, line in enumerate(raw.split(b"\n"), start=1):
+        s = line.strip()
+        if s and s[:1] not in (b"#", b"%"):
+            return lineno
+    return None
+
+
 def _first_bad_csv_line(raw, delim, width, skip):
+    """``(line, message)`` of the first data line the CSV parser rejects (bad UTF-8 or a wrong field count)."""
+    import csv
+
     seen = -1
     for lineno, line in enumerate(raw.split(b"\n"), start=1):
         s = line.strip()
@@ -395,9 +506,16 @@ def _first_bad_csv_line(raw, delim, width, skip):
         seen += 1
         if seen < skip:
             continue
-        if len(line.split(delim.encode())) != width:
-            return lineno
-    return None
+        try:
+            text = line.decode("utf-8")
+        except UnicodeDecodeError as exc:
+            return lineno, (f"is not valid UTF-8 text (byte 0x{line[exc.start]:02x} at column {exc.start + 1}); "
+                            "ids must be UTF-8 text")
+        if '"' not in text and len(text.split(delim)) != width:
+            return lineno, f"malformed row: expected {width} fields, found {len(text.split(delim))}"
+        if '"' in text and len(next(csv.reader([text], delimiter=delim), [])) != width:
+            return lineno, f"malformed row: expected {width} fields"
+    return None, None
 
 
 def _read_parquet(path, wanted, weighted, ncols=3):
@@ -410,7 +528,7 @@ def _read_parquet(path, wanted, weighted, ncols=3):
     except (pa.ArrowInvalid, OSError) as exc:
         raise InputError(path, f"is not a readable Parquet file: {exc}") from None
     names = pf.schema_arrow.names
-    chosen = _pick_columns(path, names, wanted, weighted, ncols)
+    chosen = pick_columns(path, names, wanted, weighted, ncols)
     table = pf.read(columns=chosen)
     cols = [table.column(c) for c in chosen]
     for c, col in zip(chosen, cols):
@@ -428,34 +546,22 @@ class _ParquetRows:
 # ----------------------------------------------------------------------------
 # column conversion and checks
 # ----------------------------------------------------------------------------
-def _as_ids(col):
-    """A pyarrow column of ids as int64 or an object array of str."""
-    if isinstance(col, np.ndarray):
-        return col
-    t = col.type
-    if pa.types.is_integer(t):
-        return col.to_numpy().astype(np.int64, copy=False)
-    if pa.types.is_string(t) or pa.types.is_large_string(t):
-        return np.asarray(col.to_numpy(zero_copy_only=False), dtype=object)
-    return np.asarray(col.cast(pa.string()).to_numpy(zero_copy_only=False), dtype=object)
+def _bad_first_row(path, col, row_to_line, header_rule, cast):
+    """With the header rule on, a column whose only bad value is row 0 means the first line is a header."""
+    if header_rule and len(col) > 1:
+        try:
+            cast(col.slice(1))
+        except (pa.ArrowInvalid, pa.ArrowNotImplementedError, ValueError):
+            return
+        _refuse_header(path, [col[0].as_py()], row_to_line(0))
 
 
-def _id_columns(a, b):
-    """Both id columns as int64 when both are integer, else both as strings."""
-    ints = pa.types.is_integer(a.type) and pa.types.is_integer(b.type)
-    if ints:
-        return _as_ids(a), _as_ids(b)
-    return (
-        np.asarray(a.cast(pa.string()).to_numpy(zero_copy_only=False), dtype=object),
-        np.asarray(b.cast(pa.string()).to_numpy(zero_copy_only=False), dtype=object),
-    )
-
-
-def _float_weights(col, path, row_to_line, what):
+def _float_weights(col, path, row_to_line, what, header_rule=False):
     if not (pa.types.is_floating(col.type) or pa.types.is_integer(col.type)):
         try:
             col = col.cast(pa.float64())
         except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+            _bad_first_row(path, col, row_to_line, header_rule, lambda c: c.cast(pa.float64()))
             values = col.to_numpy(zero_copy_only=False)
             for row, v in enumerate(values):
                 try:
@@ -471,16 +577,28 @@ def _float_weights(col, path, row_to_line, what):
     return w
 
 
-def _int_weights(col, path, row_to_line):
+def _whole(col):
+    """A text column of whole numbers (``3``, ``3.0``) as int64; ValueError otherwise."""
+    f = col.cast(pa.float64()).to_numpy(zero_copy_only=False)
+    if not np.all(np.isfinite(f) & (f == np.floor(f))):
+        raise ValueError("not whole")
+    return f.astype(np.int64)
+
+
+def _int_weights(col, path, row_to_line, header_rule=False):
     if not pa.types.is_integer(col.type):
-        values = col.to_numpy(zero_copy_only=False)
-        for row, v in enumerate(values):
-            try:
-                if float(v) != int(float(v)):
-                    raise ValueError
-            except (TypeError, ValueError, OverflowError):
-                raise InputError(path, f"node weight {v!r} is not a whole number", row_to_line(row)) from None
-        col = col.cast(pa.int64())
+        try:
+            col = pa.array(_whole(col))
+        except (pa.ArrowInvalid, pa.ArrowNotImplementedError, ValueError):
+            _bad_first_row(path, col, row_to_line, header_rule, _whole)
+            values = col.to_numpy(zero_copy_only=False)
+            for row, v in enumerate(values):
+                try:
+                    if float(v) != int(float(v)):
+                        raise ValueError
+                except (TypeError, ValueError, OverflowError):
+                    raise InputError(path, f"node weight {v!r} is not a whole number", row_to_line(row)) from None
+            raise
     w = col.to_numpy().astype(np.int64, copy=False)
     if (w < 0).any():
         row = int(np.flatnonzero(w < 0)[0])

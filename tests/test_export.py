@@ -18,7 +18,7 @@ from partition.cli import main
 from partition.errors import InputError, ParameterError
 from partition.generators import planted_partition, write_edgelist
 from partition.placement.export import export_run, verify_export
-from partition.placement.lookup import read_node_shards
+from partition.node_shards import read_node_shards
 
 WEIRD_IDS = ["a,b", 'q"uote', "back\\slash", "tab\tid", "ünï", "ctrl\x01x", "#hash", " lead", "plain", "x"]
 
@@ -87,7 +87,8 @@ def _read_rows(path, fmt):
 @pytest.mark.parametrize("fmt", ["parquet", "csv", "jsonl"])
 def test_tables_hold_the_placement(weird_run, tmp_path, fmt):
     _, _, out = weird_run
-    ids, shards = read_node_shards(out)
+    table = read_node_shards(out)
+    ids, shards = table.ids, table.shards
     want = dict(zip(ids.tolist(), shards.tolist()))
     dest = tmp_path / "exp"
     manifest = export_run(out, dest, fmt=fmt)
@@ -255,5 +256,6 @@ def test_lookup_reads_a_parquet_folder(tmp_path):
     folder.mkdir()
     pq.write_table(pa.table({"node": [5, 1], "shard": [0, 1]}), folder / "part-0.parquet")
     pq.write_table(pa.table({"node": [3], "shard": [1]}), folder / "part-1.parquet")
-    ids, shards = read_node_shards(folder)
+    table = read_node_shards(folder)
+    ids, shards = table.ids, table.shards
     assert sorted(zip(ids.tolist(), shards.tolist())) == [(1, 1), (3, 1), (5, 0)]

@@ -14,7 +14,8 @@ from hypothesis import strategies as st
 
 from partition.errors import InputError, ParameterError
 from partition.placement import lookup
-from partition.placement.lookup import Placement, fnv1a64, read_node_shards, string_key_hash
+from partition.node_shards import read_node_shards
+from partition.placement.lookup import Placement, fnv1a64, string_key_hash
 
 SHARED = Path(__file__).resolve().parents[2] / "shared" / "datasets"
 
@@ -204,14 +205,17 @@ def _write(tmp_path, name, text):
 
 def test_read_csv_tsv_gzip_and_parquet(tmp_path):
     csv_path = _write(tmp_path, "a.csv", "node,shard\n10,1\n\n7, 0\n-3,2\n")
-    ids, shards = read_node_shards(csv_path)
+    table = read_node_shards(csv_path)
+    ids, shards = table.ids, table.shards
     assert ids.dtype == np.int64 and ids.tolist() == [10, 7, -3] and shards.tolist() == [1, 0, 2]
     tsv_path = _write(tmp_path, "b.tsv", "shard\tnode\tnote\n1\talpha\tx\n0\tbeta\ty\n")
-    ids, shards = read_node_shards(tsv_path)
+    table = read_node_shards(tsv_path)
+    ids, shards = table.ids, table.shards
     assert ids.dtype == object and ids.tolist() == ["alpha", "beta"] and shards.tolist() == [1, 0]
     gz = tmp_path / "c.csv.gz"
     gz.write_bytes(gzip.compress(b"node,shard\n007,3\nx,1\n"))
-    ids, _ = read_node_shards(gz)
+    table = read_node_shards(gz)
+    ids, _ = table.ids, table.shards
     assert ids.tolist() == ["007", "x"]  # not all integers: every id is a string
     pq_path = tmp_path / "d.parquet"
     pq.write_table(pa.table({"node": pa.array([5, 6], pa.int64()), "shard": pa.array([0, 1], pa.int32())}), pq_path)
@@ -258,9 +262,13 @@ def test_bad_files_without_lines(tmp_path):
     with pytest.raises(InputError, match="row 2: the shard is missing"):
         read_node_shards(bad)
     other = tmp_path / "cols.parquet"
-    pq.write_table(pa.table({"id": [1], "part": [0]}), other)
-    with pytest.raises(InputError, match="needs columns node and shard"):
-        read_node_shards(other)
+    pq.write_table(pa.table({"weight": [5], "id": [1], "part": [0]}), other)
+    table = read_node_shards(other)  # the usual names id/part are found by name, not position
+    assert table.ids.tolist() == [1] and table.shards.tolist() == [0] and table.columns == ("id", "part")
+    unknown = tmp_path / "unknown.parquet"
+    pq.write_table(pa.table({"a": [1], "b": [0], "c": [2]}), unknown)
+    with pytest.raises(InputError, match="cannot tell the node and shard columns"):
+        read_node_shards(unknown)
 
 
 @pytest.mark.parametrize("suffix", [".csv", ".tsv", ".parquet", ".csv.gz"])
@@ -273,7 +281,8 @@ def test_reads_files_written_by_write_assignment(tmp_path, suffix):
     g = build_graph(np.array(["a b", "#x", " c", "d,e"], dtype=object), np.array(["x", "y", "z", "w"], dtype=object))
     parts = np.arange(g.n) % 3
     write_assignment(tmp_path / f"s{suffix}", g, parts)
-    ids, shards = read_node_shards(tmp_path / f"s{suffix}")
+    table = read_node_shards(tmp_path / f"s{suffix}")
+    ids, shards = table.ids, table.shards
     assert ids.tolist() == g.ids.tolist() and shards.tolist() == parts.tolist()
     g = build_graph(np.array([5, -3, 2**62]), np.array([1, 2, 3]))
     write_assignment(tmp_path / f"i{suffix}", g, np.arange(g.n) % 2)

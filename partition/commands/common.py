@@ -20,8 +20,13 @@ def add_graph_arguments(parser, positional=True):
     g.add_argument("--node-weights", metavar="FILE", help="file of 'id weight' rows (non-negative whole numbers)")
     g.add_argument("--allow-isolated", action="store_true",
                    help="ids in the node-weights file without edges become isolated nodes (default: an error)")
-    g.add_argument("--delimiter", help="field delimiter (default: detected)")
-    g.add_argument("--no-header", action="store_true", help="CSV/TSV: the first row is data, not a header")
+    g.add_argument("--delimiter", help="field delimiter: one character, or \\t, tab, comma, semicolon, space "
+                                       "(default: detected)")
+    head = g.add_mutually_exclusive_group()
+    head.add_argument("--header", dest="header", action="store_const", const=True, default=None,
+                      help="the first line names the columns (default: CSV/TSV yes, text no)")
+    head.add_argument("--no-header", dest="header", action="store_const", const=False,
+                      help="the first line is data, not a header")
     return parser
 
 
@@ -35,7 +40,7 @@ def graph_from_args(args):
         target_column=args.target_column,
         weight_column=args.weight_column,
         node_weights=args.node_weights,
-        header=not args.no_header,
+        header=args.header,
         delimiter=args.delimiter,
         allow_isolated=args.allow_isolated,
     )

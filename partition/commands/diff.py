@@ -15,7 +15,7 @@ import json
 import numpy as np
 
 from partition.errors import InputError, ParameterError
-from partition.placement.lookup import read_node_shards
+from partition.node_shards import read_node_shards
 from partition.placement.migration import align_placements, migration_plan, write_plan
 from partition.placement.relabel import relabel_to_match
 
@@ -44,8 +44,8 @@ def run(args) -> int:
         raise ParameterError(f"--rows must be at least 0, got {args.rows}")
     if args.output is not None and not args.output.lower().endswith((".csv", ".tsv", ".parquet", ".pq")):
         raise ParameterError(f"{args.output}: the plan file must end in .csv, .tsv, .parquet or .pq")
-    old_ids, old_shards = read_node_shards(args.old)
-    new_ids, new_shards = read_node_shards(args.new)
+    old, new = read_node_shards(args.old), read_node_shards(args.new)
+    old_ids, old_shards, new_ids, new_shards = old.ids, old.shards, new.ids, new.shards
     weights = None
     if args.node_weights is not None:
         from partition.edgelist import read_node_weights

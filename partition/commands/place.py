@@ -84,14 +84,15 @@ def _text_lines(path):
 def run(args) -> int:
     """Place the arrivals and write their shards."""
     from partition.edgelist import read_edges
-    from partition.placement.lookup import read_node_shards
+    from partition.node_shards import read_node_shards
     from partition.placement.online import OnlinePlacer, final_capacity
     from partition.tables import write_table
 
     eps = check_imbalance(args.imbalance)
     if args.capacity is not None and args.capacity < 0:
         raise ParameterError(f"--capacity must be >= 0, got {args.capacity}")
-    ids, shards = read_node_shards(args.placement)
+    placed = read_node_shards(args.placement)
+    ids, shards = placed.ids, placed.shards
     k = int(shards.max()) + 1 if args.k is None else args.k
     if k < 1:
         raise ParameterError(f"k must be at least 1, got {k}")

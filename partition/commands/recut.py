@@ -136,7 +136,7 @@ def _run_spark(args, k, eps, report_path):
     sg = read_graph_df(spark, args.graph, fmt=args.graph_format, weighted=args.weighted,
                        source_column=args.source_column, target_column=args.target_column,
                        weight_column=args.weight_column, node_weights=args.node_weights,
-                       allow_isolated=args.allow_isolated, header=not args.no_header, delimiter=args.delimiter)
+                       allow_isolated=args.allow_isolated, header=args.header, delimiter=args.delimiter)
     check_parts(k, sg.n)
     order = read_order_df(spark, args.order, sg)
     parts, stats = recut_spark(spark, sg, order, k, eps=eps, seed=args.seed, refine=not args.no_refine,

@@ -151,7 +151,7 @@ def _run_spark(args, k, report_path, progress):
                         output=args.output, output_format="csv" if lower.endswith(".csv") else "parquet",
                         report=report_path, work_dir=args.work_dir, resume=args.resume, progress=progress,
                         source_column=args.source_column, target_column=args.target_column,
-                        weight_column=args.weight_column, header=not args.no_header, delimiter=args.delimiter,
+                        weight_column=args.weight_column, header=args.header, delimiter=args.delimiter,
                         order_output=args.order_output)
     finally:
         if progress:

@@ -50,7 +50,7 @@ import pyarrow.parquet as pq
 from partition import __version__
 from partition.atomic import atomic_path, write_bytes, write_text
 from partition.errors import InputError, ParameterError
-from partition.placement.lookup import read_node_shards
+from partition.node_shards import read_node_shards
 
 __all__ = ["export_run", "verify_export", "check_export", "publish_export", "file_sha256", "find_input_graph",
            "manifest_head", "FORMATS", "MANIFEST"]
@@ -281,7 +281,8 @@ def export_run(assignment, out_dir, fmt="parquet", report=None, graph=None, forc
     assignment, out_dir, report_path, rep, graph_path, graph_sum = check_export(
         assignment, out_dir, fmt, report, graph, force)
     k = int(rep["k"])
-    ids, shards = read_node_shards(assignment)
+    table = read_node_shards(assignment)
+    ids, shards = table.ids, table.shards
     nodes = rep["input"].get("nodes")
     if nodes is not None and ids.shape[0] != int(nodes):
         raise InputError(assignment, f"holds {ids.shape[0]} nodes but the report's graph has {nodes}")

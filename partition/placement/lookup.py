@@ -16,27 +16,21 @@ searched in Python over memoryviews of the same arrays, which costs less than
 the call into compiled code. The compiled loop searches blocks of 16 queries
 step by step, so the memory accesses of different queries overlap.
 
-:func:`read_node_shards` reads a ``node,shard`` file (CSV/TSV with a header,
-optionally gzip-compressed, or Parquet) without a graph: node ids are int64
-when every id is an integer, otherwise strings; errors name the file and line.
+:meth:`Placement.load` reads a node→shard table with
+:func:`partition.node_shards.read_node_shards` (the one reader of such tables).
 """
 
 from __future__ import annotations
-
-import csv
-import io
-import os
 
 import numba
 import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
-import pyarrow.csv as pacsv
 
-from partition.assignment import open_node_shards
-from partition.errors import InputError, ParameterError
+from partition.errors import ParameterError
+from partition.node_shards import read_node_shards
 
-__all__ = ["Placement", "read_node_shards", "fnv1a64", "string_key_hash"]
+__all__ = ["Placement", "fnv1a64", "string_key_hash"]
 
 _FNV_OFFSET = np.uint64(0xCBF29CE484222325)
 _FNV_PRIME = np.uint64(0x100000001B3)
@@ -46,7 +40,6 @@ _M2 = np.uint64(0x94D049BB133111EB)
 _SIGN = np.uint64(1 << 63)
 _ALL = np.uint64(0xFFFFFFFFFFFFFFFF)
 _HASH_MASK = _ALL  # bits of the string hash in use; a narrower mask forces collisions in tests
-_INT = r"^[+-]?[0-9]+$"
 _MISSING = object()
 
 
@@ -373,8 +366,8 @@ class Placement:
             has a shard that is not an integer in ``[0, 2**31)``; the message
             names the file and line.
         """
-        name, ids, shards, where = _read(path)
-        return cls._build(ids, shards, lambda key: _repeat_error(name, ids, key, where))
+        table = read_node_shards(path)
+        return cls._build(table.ids, table.shards)
 
     @classmethod
     def from_arrays(cls, keys, shards):
@@ -598,209 +591,3 @@ def _directory(keys):
     starts[:nb] = np.searchsorted(keys, floors, side="left")
     starts[nb] = n
     return starts, lo, hi, np.uint64(shift)
-
-
-# --- reading node,shard files ------------------------------------------------
-
-
-def read_node_shards(path):
-    """Read a ``node,shard`` file without a graph.
-
-    Parameters
-    ----------
-    path : str or os.PathLike
-        CSV (comma) or TSV (tab; chosen when the header holds a tab and no
-        comma) whose first line is a header naming the columns ``node`` and
-        ``shard`` (other columns are ignored; empty lines are skipped; may be
-        gzip-compressed), or a Parquet file with ``node`` and ``shard``
-        columns. Blanks around integers are ignored; string ids are kept
-        exactly as written (quote an id to keep blanks or a comma in it).
-
-    Returns
-    -------
-    ids : ndarray of int64, or of str (dtype object)
-        Node ids in file order: int64 when every id is an integer, else strings.
-    shards : ndarray of int64
-        The shard of each row, in ``[0, 2**31)``.
-
-    Raises
-    ------
-    InputError
-        Missing or unreadable file, a header without ``node``/``shard``, a row
-        with the wrong number of fields, an empty node id, a shard that is not
-        a non-negative integer below ``2**31``, or a node listed twice. The
-        message names the file and the line (Parquet: the row).
-    """
-    name, ids, shards, where = _read(path)
-    if isinstance(ids, np.ndarray):
-        s = np.sort(ids)
-        again = np.flatnonzero(s[1:] == s[:-1])
-        if again.size:
-            raise _repeat_error(name, ids, s[again[0]], where)
-        return ids, shards
-    codes = ids.dictionary_encode().indices.to_numpy()
-    again = np.flatnonzero(codes[1:] <= np.maximum.accumulate(codes)[:-1])
-    if again.size:
-        raise _repeat_error(name, ids, ids[int(again[0]) + 1].as_py(), where)
-    return ids.to_numpy(zero_copy_only=False).astype(object), shards
-
-
-def _repeat_error(name, ids, key, where):
-    """The error for a node listed twice: the line of its second row, naming the first."""
-    if isinstance(ids, np.ndarray):
-        rows = np.flatnonzero(ids == key)
-    else:
-        rows = np.flatnonzero(pc.equal(ids, pa.scalar(key, pa.large_string())).to_numpy(zero_copy_only=False))
-    first, _ = where(int(rows[0]))
-    line, prefix = where(int(rows[1]))
-    earlier = f"line {first}" if first is not None else f"row {rows[0] + 1}"
-    shown = int(key) if isinstance(ids, np.ndarray) else repr(key)
-    return InputError(name, f"{prefix}node {shown} is listed twice (first on {earlier})", line)
-
-
-def _read(path):
-    """``(name, ids, shards, where)`` of a node,shard file; repeated nodes are not checked."""
-    name, table, raw = open_node_shards(path)
-    if table is not None:
-        nodes, shards, where = _table_columns(name, table)
-    else:
-        nodes, shards, where = _text_columns(name, raw)
-
-    def fail(row, message):
-        line, prefix = where(int(row))
-        return InputError(name, prefix + message, line)
-
-    if len(nodes) == 0:
-        raise InputError(name, "holds no node,shard rows")
-    return name, _node_ids(nodes, fail), _shard_ints(shards, fail), where
-
-
-def _text_columns(name, raw):
-    end = raw.find(b"\n")
-    head = (raw if end < 0 else raw[:end]).decode("utf-8", "replace").rstrip("\r")
-    delim = "\t" if "\t" in head and "," not in head else ","
-    fields = next(csv.reader([head], delimiter=delim), [])
-    names = [f.strip().lower() for f in fields]
-    if names.count("node") != 1 or names.count("shard") != 1:
-        raise InputError(name, f"the first line must be a header naming the columns node and shard, found {head[:80]!r}", 1)
-    cols = [f"c{i}" for i in range(len(fields))]
-    node, shard = cols[names.index("node")], cols[names.index("shard")]
-    table = None
-    for types in ((pa.int64(), pa.int64()), (pa.string(), pa.int64()), (pa.string(), pa.string())):
-        try:  # typed parses first (fast); strings last, whose checks name the bad line
-            table = pacsv.read_csv(
-                pa.py_buffer(raw),
-                read_options=pacsv.ReadOptions(skip_rows=1, column_names=cols),
-                parse_options=pacsv.ParseOptions(delimiter=delim),
-                convert_options=pacsv.ConvertOptions(
-                    column_types={node: types[0], shard: types[1]}, include_columns=[node, shard],
-                    strings_can_be_null=False, quoted_strings_can_be_null=False,
-                ),
-            )
-        except (pa.ArrowInvalid, UnicodeDecodeError) as exc:
-            if types[1] == pa.string():
-                raise _locate_bad_line(name, raw, delim, len(fields), exc) from None
-            continue
-        if table.column(0).null_count == 0 and table.column(1).null_count == 0:
-            break
-    lines = []
-
-    def where(row):
-        if not lines:
-            lines.append(_row_lines(raw, delim))
-        return int(lines[0][row]), ""
-
-    return table.column(0), table.column(1), where
-
-
-def _row_lines(raw, delim):
-    """1-based line of each data row (rows after the header; empty lines skipped)."""
-    if b'"' not in raw:
-        buf = np.frombuffer(raw, dtype=np.uint8)
-        nl = np.flatnonzero(buf == 10)
-        starts = np.concatenate(([0], nl + 1))
-        ends = np.concatenate((nl, [buf.size]))
-        length = ends - starts
-        cr = (length > 0) & (buf[np.maximum(ends - 1, 0)] == 13)
-        full = np.flatnonzero(length - cr > 0)
-        return full[full > 0] + 1
-    reader = csv.reader(io.StringIO(raw.decode("utf-8", "replace"), newline=""), delimiter=delim)
-    out, prev = [], 0
-    for rec in reader:
-        if rec and reader.line_num > 1:
-            out.append(prev + 1)
-        prev = reader.line_num
-    return np.asarray(out, dtype=np.int64)
-
-
-def _locate_bad_line(name, raw, delim, width, exc):
-    """Slow pass over the lines to name the first one the parser rejects."""
-    text_lines = raw.split(b"\n")
-    for i, chunk in enumerate(text_lines[1:], start=2):
-        try:
-            text = chunk.decode("utf-8").rstrip("\r")
-        except UnicodeDecodeError:
-            return InputError(name, "is not valid UTF-8 text", i)
-        if not text:
-            continue
-        n_fields = len(next(csv.reader([text], delimiter=delim), []))
-        if n_fields != width:
-            return InputError(name, f"expected {width} fields like the header, found {n_fields}: {text[:80]!r}", i)
-    return InputError(name, f"cannot be parsed ({exc})")
-
-
-def _table_columns(name, table):
-    if "node" not in table.column_names or "shard" not in table.column_names:
-        raise InputError(name, f"needs columns node and shard, has {table.column_names}")
-    nodes, shards = table.column("node"), table.column("shard")
-    for label, col in (("node", nodes), ("shard", shards)):
-        t = col.type
-        if not (pa.types.is_integer(t) or pa.types.is_string(t) or pa.types.is_large_string(t)):
-            raise InputError(name, f"the {label} column has type {t}; expected integers or strings")
-        if col.null_count:
-            row = int(np.flatnonzero(col.is_null().to_numpy(zero_copy_only=False))[0])
-            raise InputError(name, f"row {row + 1}: the {label} is missing (null)")
-    return nodes, shards, lambda row: (None, f"row {row + 1}: ")
-
-
-def _shard_ints(col, fail):
-    """Shard column as int64 in ``[0, 2**31)``; the first bad row raises."""
-    if pa.types.is_integer(col.type):
-        vals = col.to_numpy()
-    else:
-        col = pc.utf8_trim_whitespace(col)
-        ok = pc.match_substring_regex(col, _INT).to_numpy(zero_copy_only=False)
-        if not ok.all():
-            row = int(np.flatnonzero(~ok)[0])
-            raise fail(row, f"shard {col[row].as_py()!r} is not an integer")
-        digits = pc.utf8_length(pc.replace_substring_regex(col, r"^[+-]?0*", "")).to_numpy(zero_copy_only=False)
-        if digits.max(initial=0) > 12:
-            row = int(np.flatnonzero(digits > 12)[0])
-            raise fail(row, f"shard {col[row].as_py()} is out of range; shard ids run from 0 to 2**31 - 1")
-        vals = pc.cast(pc.replace_substring_regex(col, r"^\+", ""), pa.int64()).to_numpy()
-    bad = np.flatnonzero((vals < 0) | (vals >= 2**31))
-    if bad.size:
-        row = int(bad[0])
-        raise fail(row, f"shard {vals[row]} is out of range; shard ids run from 0 to 2**31 - 1")
-    return vals.astype(np.int64, copy=False)
-
-
-def _node_ids(col, fail):
-    """Node column as int64 when every id is an integer, else a large_string array."""
-    col = col.combine_chunks() if isinstance(col, pa.ChunkedArray) else col
-    if pa.types.is_integer(col.type):
-        if col.type == pa.uint64() and len(col) and pc.max(col).as_py() >= 2**63:
-            row = int(np.flatnonzero(col.to_numpy() >= np.uint64(2**63))[0])
-            raise fail(row, f"node {col[row].as_py()} does not fit a 64-bit signed integer")
-        return col.to_numpy().astype(np.int64, copy=False)
-    col = pc.cast(col, pa.large_string())
-    trimmed = pc.utf8_trim_whitespace(col)
-    empty = (pc.utf8_length(trimmed).to_numpy(zero_copy_only=False) == 0)
-    if empty.any():
-        raise fail(int(np.flatnonzero(empty)[0]), "the node id is empty")
-    if pc.all(pc.match_substring_regex(trimmed, _INT)).as_py():
-        try:
-            return pc.cast(pc.replace_substring_regex(trimmed, r"^\+", ""), pa.int64()).to_numpy()
-        except pa.ArrowInvalid:
-            pass  # an id beyond the int64 range: keep them all as strings
-    return col  # string ids are kept as written (a quoted " a" keeps its blank)

@@ -84,7 +84,7 @@ def read_order(path, graph):
         nodes at the same position.
     """
     try:
-        pos = read_assignment(path, graph)
+        pos = read_assignment(path, graph, shard_names=("position",))
     except InputError as exc:
         raise InputError(exc.path, _as_position_message(exc.detail), exc.line) from None
     counts = np.bincount(pos, minlength=graph.n)
