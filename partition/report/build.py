@@ -222,7 +222,8 @@ def build_report(run, graph=None, parts=None, order=None, baselines=None, worklo
         fig, drawn = F.spy_plot(graph.indptr, graph.indices, position, parts[seq], seed=int(run.get("seed") or 0),
                                 order_name=name)
         add("adjacency", "Adjacency matrix in the linear order", fig,
-            f"A dot for every edge (u, v) at (position of v, position of u): {drawn:,} entries drawn. "
+            f"Nodes in the {name}; a dot for every edge (u, v) at (position of v, position of u): "
+            f"{drawn:,} entries drawn. "
             "Blocks along the diagonal mean related nodes sit next to each other; orange lines separate shards "
             "when the shards are (nearly) contiguous runs of the order.")
     else:

@@ -26,21 +26,20 @@ INSTALL_HINT = "pip install 'shardline[report]' (or: pip install matplotlib)"
 
 
 def require_matplotlib():
-    """Import matplotlib with the Agg backend; a :class:`ShardlineError` telling how to install it if absent."""
+    """The :class:`matplotlib.figure.Figure` class; a :class:`ShardlineError` telling how to install matplotlib if absent."""
     try:
         import matplotlib
     except ImportError:
         raise ShardlineError(f"the report's figures need matplotlib, which is not installed: {INSTALL_HINT}") \
             from None
-    matplotlib.use("Agg", force=True)
-    import matplotlib.pyplot as plt
+    from matplotlib.figure import Figure
 
-    return plt
+    return Figure
 
 
 def _figure(width=7.0, height=4.0):
-    plt = require_matplotlib()
-    fig = plt.figure(figsize=(width, height), dpi=100)
+    # a Figure of its own (not pyplot's): nothing global is kept, nothing needs closing
+    fig = require_matplotlib()(figsize=(width, height), dpi=100)
     return fig, fig.add_subplot(1, 1, 1)
 
 
@@ -200,8 +199,7 @@ def start_cuts(starts, chosen=None):
 
 def baseline_bars(rows):
     """Cut fraction and imbalance of Shardline's run beside the baselines (``rows``: name, cut_fraction, imbalance)."""
-    plt = require_matplotlib()
-    fig = plt.figure(figsize=(8.0, 3.8), dpi=100)
+    fig = require_matplotlib()(figsize=(8.0, 3.8), dpi=100)
     ax1, ax2 = fig.add_subplot(1, 2, 1), fig.add_subplot(1, 2, 2)
     names = [r["name"] for r in rows]
     colours = ["#1e8449" if r.get("ours") else "#aab7b8" for r in rows]
