@@ -85,19 +85,23 @@ def test_quiet_means_no_reporter():
     assert isinstance(progress_for(quiet=False), Progress)
 
 
-def test_label_propagation_reports_every_round_cut():
+def test_label_propagation_reports_every_round_cut_and_leaves_the_graph_alone():
     from partition.baselines.labelprop import label_propagation
     from partition.generators import planted_partition
     from partition.graph import build_graph
 
     src, dst, _ = planted_partition(4, 60, 0.2, 0.02, seed=3)
-    graph = build_graph(src, dst)
+    weights = 1.0 + (np.arange(src.size) % 3)
+    graph = build_graph(src, dst, weights=weights)
+    before = [a.copy() for a in (graph.indptr, graph.indices, graph.edge_weights)]
     rows = []
     parts = label_propagation(graph, 4, eps=0.03, seed=1, progress=rows.append)
+    # the rounds read the graph's arrays and never write into them (a weighted graph's weights included)
+    assert all(np.array_equal(a, b) for a, b in zip(before, (graph.indptr, graph.indices, graph.edge_weights)))
     assert rows and [r["round"] for r in rows] == list(range(1, len(rows) + 1))
     g = nx.Graph()
-    g.add_edges_from(zip(graph.rows().tolist(), graph.indices.tolist()))
-    final = sum(nx.cut_size(g, set(np.flatnonzero(parts == s).tolist())) for s in range(4)) / 2
+    g.add_weighted_edges_from(zip(graph.rows().tolist(), graph.indices.tolist(), graph.edge_weights.tolist()))
+    final = sum(nx.cut_size(g, set(np.flatnonzero(parts == s).tolist()), weight="weight") for s in range(4)) / 2
     # the result is the best assignment seen: its cut is at most every reported round's cut
     assert final <= min(r["cut"] for r in rows) + 1e-9
 

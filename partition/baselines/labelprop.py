@@ -80,8 +80,9 @@ def desired_moves(graph, parts, k, rows=None):
     n = graph.n
     if rows is None:
         rows = graph.rows()
+    # copy=True: sum_duplicates works in place, and the data and indptr arrays are the graph's own
     conn = sp.csr_matrix(
-        (graph.edge_weight_array(), parts[graph.indices], graph.indptr), shape=(n, k)
+        (graph.edge_weight_array(), parts[graph.indices], graph.indptr), shape=(n, k), copy=True
     )
     conn.sum_duplicates()  # also sorts the shard numbers within each row
     ptr, cols, vals = conn.indptr, conn.indices, conn.data
