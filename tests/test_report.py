@@ -292,4 +292,21 @@ def test_a_catalog_graph_gets_its_published_figures_in_score_and_report(tmp_path
     assert main(["report", str(out), "-o", str(tmp_path / "p.html"), "--quiet"]) == 0
     text = (tmp_path / "p.html").read_text(encoding="utf-8")
     assert "Published figures for this graph" in text and "data-ref='0.03'>198<" in text
-    assert "recalled from memory" in text
+    assert "recalled from memory and not checked" in text
+
+
+def test_spy_plot_of_a_large_graph_counts_every_sampled_entry_once():
+    from partition.generators import grid2d
+    from partition.graph import build_graph
+    from partition.report.figures import DENSITY_ABOVE, DENSITY_BINS, spy_plot
+
+    g = build_graph(*grid2d(150, 150))  # 22,500 nodes: above DENSITY_ABOVE, drawn as entries per cell
+    assert g.n > DENSITY_ABOVE
+    fig, drawn = spy_plot(g.indptr, g.indices, np.arange(g.n), seed=1, max_points=50_000)
+    counts = fig.axes[0].images[0].get_array()
+    assert counts.shape == (DENSITY_BINS, DENSITY_BINS)
+    assert drawn == 50_000 and int(np.ma.filled(counts, 0).sum()) == drawn
+    # in row-major id order a grid's neighbours are 1 or 150 positions apart; a cell spans 22,500 / 400 =
+    # 56.25 positions, so every entry lies within ⌈150 / 56.25⌉ = 3 cells of the diagonal
+    rows, cols = np.nonzero(np.ma.filled(counts, 0))
+    assert np.abs(rows - cols).max() == 3

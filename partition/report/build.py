@@ -213,7 +213,7 @@ def build_report(run, graph=None, parts=None, order=None, baselines=None, worklo
         parts = np.asarray(parts, dtype=np.int64)
         if order is None:
             seq = np.lexsort((np.arange(graph.n), parts))
-            name = "order by shard (no linear order was given)"
+            name = "order by shard (no linear order kept)"
         else:
             seq = np.asarray(order, dtype=np.int64)
             name = "linear order"

@@ -22,6 +22,12 @@ __all__ = ["require_matplotlib", "load_bars", "cut_heatmap", "spy_plot", "hierar
 SPY_MAX_POINTS = 300_000
 """Largest number of adjacency entries the spy plot draws; larger graphs are sampled (seeded)."""
 
+DENSITY_ABOVE = 20_000
+"""Above this many nodes the spy plot shows entries per grid cell (a dot would be far below a pixel)."""
+
+DENSITY_BINS = 400
+"""Grid cells per side of the density picture."""
+
 INSTALL_HINT = "pip install 'shardline[report]' (or: pip install matplotlib)"
 
 
@@ -115,21 +121,30 @@ def spy_plot(indptr, indices, position, shard_of_position=None, seed=0, max_poin
     else:
         cols = indices
     x, y = position[cols], position[rows]
-    fig, ax = _figure(5.6, 5.6)
-    size = 4.0 if x.size < 20_000 else (1.0 if x.size < 100_000 else 0.25)
-    ax.scatter(x, y, s=size, marker="s", linewidths=0, color="#1b4f72", rasterized=True)
+    fig, ax = _figure(5.6, 5.8)
+    if n <= DENSITY_ABOVE:
+        size = 4.0 if x.size < 20_000 else 1.0
+        ax.scatter(x, y, s=size, marker="s", linewidths=0, color="#1b4f72", rasterized=True)
+    else:  # too many nodes for one dot per pixel: entries per cell of a grid, on a log colour scale
+        from matplotlib.colors import LogNorm
+
+        bins = DENSITY_BINS
+        counts, _, _ = np.histogram2d(y, x, bins=bins, range=[[-0.5, n - 0.5], [-0.5, n - 0.5]])
+        img = ax.imshow(np.ma.masked_equal(counts, 0), cmap="Blues", norm=LogNorm(vmin=1, vmax=max(counts.max(), 2)),
+                        extent=(-0.5, n - 0.5, n - 0.5, -0.5), interpolation="nearest", aspect="equal")
+        fig.colorbar(img, ax=ax, shrink=0.8).set_label(f"entries per cell ({n / bins:,.0f} × {n / bins:,.0f} nodes)")
     if shard_of_position is not None and n:
         runs = np.asarray(shard_of_position)
         change = np.flatnonzero(np.diff(runs) != 0) + 0.5
-        if change.size <= min(256, 2 * np.unique(runs).size):  # shards (nearly) contiguous on the line
+        if change.size <= min(32, 2 * np.unique(runs).size):  # shards (nearly) contiguous on the line
             for c in change:
-                ax.axvline(c, color="#e67e22", linewidth=0.4, alpha=0.7)
-                ax.axhline(c, color="#e67e22", linewidth=0.4, alpha=0.7)
+                ax.axvline(c, color="#e67e22", linewidth=0.4, alpha=0.5, zorder=0)
+                ax.axhline(c, color="#e67e22", linewidth=0.4, alpha=0.5, zorder=0)
     ax.set_xlim(-0.5, n - 0.5)
     ax.set_ylim(n - 0.5, -0.5)
     ax.set_aspect("equal")
-    sampled = f", {x.size:,} of {total:,} entries sampled" if total > max_points else ""
-    ax.set_title(f"Adjacency in the {order_name}{sampled}", fontsize=10)
+    sampled = f"\n({x.size:,} of {total:,} entries, sampled)" if total > max_points else ""
+    ax.set_title(f"Adjacency in the {order_name}{sampled}", fontsize=9)
     ax.set_xlabel("node position (column)")
     ax.set_ylabel("node position (row)")
     fig.tight_layout()

@@ -64,23 +64,28 @@ def _references_table(rep):
         return ""
     head = ("<table id='references'><tr><th>ε</th><th>figure</th><th>this run</th><th>best published</th>"
             "<th>this run / published</th><th>source</th></tr>")
-    body = []
+    body, sources = [], []
     for r in rep.references:
         fmt = (lambda v: f"{v:,.0f}") if r["metric"] == "cut_edges" else (lambda v: f"{v:.4f}")
-        memo = " <span class='memory'>(value recalled from memory, not checked against the source)</span>" \
-            if r["from_memory"] else ""
-        note = f" <span class='note'>{_e(r['note'])}</span>" if r.get("note") else ""
+        for text in (r["citation"], r.get("note")):
+            if text and text not in sources:
+                sources.append(text)
+        marks = "".join(f"[{sources.index(t) + 1}]" for t in (r["citation"], r.get("note")) if t)
+        memo = " <span class='memory'>from memory</span>" if r["from_memory"] else ""
         mark = " ← this run's ε" if r["same_eps"] else ""
         ratio = f"{r['ratio']:.3f}" if r["ratio"] is not None else "—"
         body.append(f"<tr><td>{r['imbalance']:g}{mark}</td><td>{_e(r['metric'].replace('_', ' '))}</td>"
                     f"<td class='num'>{fmt(r['ours'])}</td><td class='num' data-ref='{r['imbalance']:g}'>"
-                    f"{fmt(r['published'])}</td><td class='num'>{ratio}</td>"
-                    f"<td>{_e(r['citation'])}{memo}{note}</td></tr>")
+                    f"{fmt(r['published'])}</td><td class='num'>{ratio}</td><td>{marks}{memo}</td></tr>")
+    foot = "".join(f"<li class='note'>{_e(t)}</li>" for t in sources)
+    if any(r["from_memory"] for r in rep.references):
+        foot += ("<li class='note memory'>from memory: the value was recalled from memory and not checked "
+                 "against the source.</li>")
     entry = rep.catalog_entry
     intro = (f"<p>{_e(entry['name'])} ({_e(entry['collection'])}; matched by {_e(entry['matched_by'])}). "
              "Published best cuts for the same k; they come from other methods and far longer runs. Our run "
              f"allowed ε = {rep.run.get('imbalance_allowed')}: compare it with rows of the same or a smaller ε.</p>")
-    return intro + head + "".join(body) + "</table>"
+    return intro + head + "".join(body) + "</table><ol>" + foot + "</ol>"
 
 
 def _baselines_table(rep):
