@@ -98,6 +98,7 @@ def run(args) -> int:
     finally:
         if progress:
             progress.close()
+    t_out = time.perf_counter()
     stability = None
     if args.previous:
         from partition.assignment import read_assignment
@@ -132,6 +133,8 @@ def run(args) -> int:
             write_table(tmp[3], hierarchy_table(graph, result.hierarchy))
         with open(tmp[1], "w", encoding="utf-8") as fh:
             fh.write(json.dumps(report, indent=2, sort_keys=True) + "\n")
+    if progress:
+        progress.line(f"scored and wrote {args.output} in {time.perf_counter() - t_out:.2f} s")
     if args.json:
         print(json.dumps(report, indent=2, sort_keys=True))
     else:
