@@ -310,3 +310,28 @@ def test_spy_plot_of_a_large_graph_counts_every_sampled_entry_once():
     # 56.25 positions, so every entry lies within ⌈150 / 56.25⌉ = 3 cells of the diagonal
     rows, cols = np.nonzero(np.ma.filled(counts, 0))
     assert np.abs(rows - cols).max() == 3
+
+
+def test_a_spark_shaped_report_gets_the_missing_figures_measured(small_run):
+    """The Spark engine's report holds cut and balance only, and its starts as cut weights (partition/spark/engine.py)."""
+    from partition.report import build_report
+    from partition.score import score
+
+    _, run = small_run
+    full = run.report["result"]
+    spark = dict(run.report, engine="spark", mode="distributed",
+                 result={key: full[key] for key in ("cut_edges", "cut_fraction", "cut_weight", "edges", "imbalance",
+                                                    "nodes", "shards", "total_edge_weight", "total_node_weight")},
+                 starts=[{"start": s["start"], "raw_cut": s["raw_cut_fraction"] * full["total_edge_weight"],
+                          "cut": s["cut_fraction"] * full["total_edge_weight"]} for s in run.report["starts"]],
+                 stages=[{"stage": r["stage"], "seconds": r["seconds"]} for r in run.report["stages"]])
+    rep = build_report(spark, graph=run.graph, parts=run.parts)
+    cells = {key: text for key, _, text in rep.summary}
+    s = score(run.graph, run.parts, k=run.report["k"])
+    assert cells["result.fanout"] == f"{s.fanout:.6f}" and cells["result.communication_volume"] == \
+        f"{s.communication_volume:,}"
+    assert "measured here from the graph" in " ".join(rep.notes)
+    assert "refinement" not in rep.figures and "cut_matrix" in rep.figures
+    heights = [p.get_height() for p in rep.figures["starts"][1].axes[0].patches]
+    assert heights == pytest.approx([x["raw_cut_fraction"] for x in run.report["starts"]]
+                                    + [x["cut_fraction"] for x in run.report["starts"]])

@@ -82,8 +82,9 @@ def summary_rows(run):
         ("result.cut_fraction", "cut fraction", f"{res['cut_fraction']:.6f}"),
         ("result.imbalance", "imbalance", f"{res['imbalance']:.6f}"),
         ("imbalance_allowed", "allowed imbalance ε", f"{run.get('imbalance_allowed', 0)}"),
-        ("result.communication_volume", "communication volume", f"{res['communication_volume']:,}"),
-        ("result.fanout", "fanout", f"{res['fanout']:.6f}"),
+        ("result.communication_volume", "communication volume",
+         f"{res['communication_volume']:,}" if "communication_volume" in res else "—"),
+        ("result.fanout", "fanout", f"{res['fanout']:.6f}" if "fanout" in res else "—"),
         ("engine", "engine", str(run.get("engine", "?")) + (f" ({run['mode']} mode)" if run.get("mode") else "")),
         ("seconds", "seconds (partition)", f"{run.get('seconds', 0):.2f}"),
         ("seed", "seed", str(run.get("seed"))),
@@ -181,7 +182,21 @@ def build_report(run, graph=None, parts=None, order=None, baselines=None, worklo
     eps = run.get("imbalance_allowed")
     if baselines and graph is None:
         raise ParameterError("baselines are measured on the graph: give the graph too")
+    measured = []
+    if graph is not None and parts is not None:  # figures an engine's report may lack (the Spark engine's)
+        from partition.score import score
+
+        wanted = ("communication_volume", "fanout", "cut_matrix", "shard_weights")
+        missing = [key for key in wanted if key not in res]
+        if missing:
+            full = score(graph, np.asarray(parts, dtype=np.int64), k=k, eps=eps).to_dict()
+            res = dict(res, **{key: full[key] for key in missing})
+            run = dict(run, result=res)
+            measured = [key.replace("_", " ") for key in missing]
     rep = Report(run=run, summary=summary_rows(run))
+    if measured:
+        rep.notes.append(f"{', '.join(measured)}: measured here from the graph and the assignment (the run's "
+                         "report does not hold them)")
     inp = run.get("input") or {}
     rep.catalog_entry = find_catalog_entry(inp.get("graph"), inp.get("sha256"), catalog)
     rep.references = reference_rows(rep.catalog_entry, k, res["cut_edges"], inp.get("edges") or res["edges"], eps)
