@@ -35,7 +35,7 @@ METHODS = {
 STREAMING = frozenset({"ldg", "fennel", "labelprop"})
 
 
-def run_baseline(name, graph, k, eps=0.0, seed=0, order="random"):
+def run_baseline(name, graph, k, eps=0.0, seed=0, order="random", progress=None):
     """Run the baseline called ``name``.
 
     Parameters
@@ -52,6 +52,10 @@ def run_baseline(name, graph, k, eps=0.0, seed=0, order="random"):
     order : {"random", "bfs", "given"} or array of int
         Node order of the streaming methods (and of label propagation's LDG
         start); the other methods ignore it.
+    progress : callable or None
+        Receives the rounds of label propagation (see
+        :func:`partition.baselines.labelprop.label_propagation`); the one-pass
+        methods have no rounds to report.
 
     Returns
     -------
@@ -67,6 +71,8 @@ def run_baseline(name, graph, k, eps=0.0, seed=0, order="random"):
         method = METHODS[name]
     except (KeyError, TypeError):
         raise ParameterError(f"unknown baseline {name!r}; choose one of {', '.join(METHODS)}") from None
+    if name == "labelprop":
+        return method(graph, k, eps=eps, seed=seed, order=order, progress=progress)
     if name in STREAMING:
         return method(graph, k, eps=eps, seed=seed, order=order)
     return method(graph, k, eps=eps, seed=seed)

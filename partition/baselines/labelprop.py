@@ -80,8 +80,9 @@ def desired_moves(graph, parts, k, rows=None):
     n = graph.n
     if rows is None:
         rows = graph.rows()
+    # copy=True: sum_duplicates works in place, and the data and indptr arrays are the graph's own
     conn = sp.csr_matrix(
-        (graph.edge_weight_array(), parts[graph.indices], graph.indptr), shape=(n, k)
+        (graph.edge_weight_array(), parts[graph.indices], graph.indptr), shape=(n, k), copy=True
     )
     conn.sum_duplicates()  # also sorts the shard numbers within each row
     ptr, cols, vals = conn.indptr, conn.indices, conn.data
@@ -104,7 +105,7 @@ def desired_moves(graph, parts, k, rows=None):
 
 
 def label_propagation(graph, k, eps=0.0, seed=0, order="random", start="ldg", max_rounds=10, patience=2,
-                      segments=8):
+                      segments=8, progress=None):
     """Balanced label propagation from a balanced start.
 
     Parameters
@@ -126,6 +127,10 @@ def label_propagation(graph, k, eps=0.0, seed=0, order="random", start="ldg", ma
     segments : int
         Pieces of the piecewise-linear gain of each shard pair in the linear
         program (unit weights).
+    progress : callable or None
+        Called after every round with ``{"stage": "labelprop", "round": r,
+        "moved": nodes, "cut": weight}`` (the engines' round rows, see
+        :mod:`partition.progress`).
 
     Returns
     -------
@@ -175,7 +180,7 @@ def label_propagation(graph, k, eps=0.0, seed=0, order="random", start="ldg", ma
     hi = np.full(k, rule.cap, dtype=np.int64)
     best_parts, best_cut = parts.copy(), cut_weight(graph, parts, rows)
     stale = 0
-    for _ in range(int(max_rounds)):
+    for round_no in range(1, int(max_rounds) + 1):
         nodes, target, gain = desired_moves(graph, parts, k, rows)
         if nodes.shape[0] == 0:
             break
@@ -190,6 +195,8 @@ def label_propagation(graph, k, eps=0.0, seed=0, order="random", start="ldg", ma
         parts = parts.copy()
         parts[nodes[moved]] = target[moved]
         cut = cut_weight(graph, parts, rows)
+        if progress is not None:
+            progress({"stage": "labelprop", "round": round_no, "moved": int(moved.sum()), "cut": float(cut)})
         if cut < best_cut:
             best_parts, best_cut, stale = parts, cut, 0
         else:

@@ -42,14 +42,29 @@ def run(args) -> int:
     eps = check_imbalance(args.imbalance)
     k = check_parts(args.k)
     seed = check_seed(args.seed)
+    from partition.progress import progress_for
+
+    progress = progress_for(getattr(args, "quiet", False))
+    started = time.perf_counter()
     graph = graph_from_args(args)
     check_parts(k, graph.n)
+    if progress:
+        progress.line(f"read {graph.n:,} nodes, {graph.m:,} edges in {time.perf_counter() - started:.2f} s")
     from partition.assignment import write_assignment
 
     started = time.perf_counter()
-    parts = run_baseline(args.method, graph, k, eps=eps, seed=seed, order=args.order)
-    seconds = time.perf_counter() - started
-    write_assignment(args.output, graph, parts)
+    try:
+        if progress:
+            progress.task(f"{args.method} baseline, k = {k}")
+        parts = run_baseline(args.method, graph, k, eps=eps, seed=seed, order=args.order, progress=progress)
+        seconds = time.perf_counter() - started
+        if progress:
+            progress.done()
+            progress.task(f"writing {args.output}")
+        write_assignment(args.output, graph, parts)
+    finally:
+        if progress:
+            progress.close()
 
     figures = _figures(graph, parts, k, eps)
     figures.update({

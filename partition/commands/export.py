@@ -73,8 +73,15 @@ def run(args) -> int:
         finally:
             spark.stop()
     else:
-        manifest = export_run(args.source, args.output, fmt=args.export_format, report=args.report,
-                              graph=args.graph, force=args.force)
+        from partition.progress import progress_for
+
+        progress = progress_for(getattr(args, "quiet", False))
+        try:
+            manifest = export_run(args.source, args.output, fmt=args.export_format, report=args.report,
+                                  graph=args.graph, force=args.force, progress=progress)
+        finally:
+            if progress:
+                progress.close()
     if args.json:
         print(json.dumps(manifest, indent=2, sort_keys=True))
         return 0

@@ -10,6 +10,7 @@ from partition import __version__
 from partition.affinity import DEFAULT_HUB_CAP, METHODS as AFFINITIES
 from partition.commands.common import add_graph_arguments, graph_from_args
 from partition.errors import ParameterError, check_imbalance, check_parts
+from partition.progress import Progress as _Progress  # the shared reporter (bar on a terminal, lines otherwise)
 from partition.rules import LINKAGES
 
 NAME = "run"
@@ -97,6 +98,7 @@ def run(args) -> int:
     finally:
         if progress:
             progress.close()
+    t_out = time.perf_counter()
     stability = None
     if args.previous:
         from partition.assignment import read_assignment
@@ -131,6 +133,8 @@ def run(args) -> int:
             write_table(tmp[3], hierarchy_table(graph, result.hierarchy))
         with open(tmp[1], "w", encoding="utf-8") as fh:
             fh.write(json.dumps(report, indent=2, sort_keys=True) + "\n")
+    if progress:
+        progress.line(f"scored and wrote {args.output} in {time.perf_counter() - t_out:.2f} s")
     if args.json:
         print(json.dumps(report, indent=2, sort_keys=True))
     else:
@@ -189,77 +193,6 @@ def _spark_summary(rep, graph):
         table.add_row(a, b)
     Console().print(table)
     sys.stdout.flush()
-
-
-class _Progress:
-    """Progress on standard error: one line per finished stage, and a bar over the plan's stages.
-
-    The engines announce their plan first (a row ``{"plan": [stage, ...]}``);
-    a stage row ``"<start>: <step>"`` completes the plan entry ``<step>`` (the
-    orders and line cuts of every start count as the entry ``orders``). The bar
-    is drawn only when standard error is a terminal; logs get the lines alone.
-    """
-
-    def __init__(self, console=None):
-        from rich.console import Console
-
-        self.console = console or Console(stderr=True, highlight=False)
-        self.bar = None
-        self.task = None
-        self.plan = []
-
-    def line(self, text):
-        console = self.bar.console if self.bar is not None else self.console
-        console.print(f"[dim]shardline[/dim] {text}")
-
-    def start(self, plan):
-        from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
-
-        self.plan = list(plan)
-        if self.console.is_terminal and self.bar is None:
-            self.bar = Progress(TextColumn("{task.description:<16}"), BarColumn(), MofNCompleteColumn(),
-                                TimeElapsedColumn(), console=self.console, transient=True)
-            self.bar.start()
-            self.task = self.bar.add_task(self.plan[0] if self.plan else "", total=len(self.plan))
-
-    def close(self):
-        if self.bar is not None:
-            self.bar.stop()
-            self.bar = None
-
-    def _advance(self, stage):
-        step = stage.rpartition(": ")[2]
-        step = "orders" if step in ("order", "line cut") else step
-        if step not in self.plan:
-            if self.bar is not None:
-                self.bar.update(self.task, description=stage[:16])
-            return
-        done = self.plan.index(step) + 1
-        if self.bar is not None:
-            nxt = self.plan[done] if done < len(self.plan) else "writing"
-            self.bar.update(self.task, completed=max(done, self.bar.tasks[0].completed), description=nxt)
-
-    def __call__(self, row):
-        if "plan" in row:
-            self.start(row["plan"])
-            return
-        if "stage" not in row or "seconds" not in row:  # a round inside a stage
-            rest = "  ".join(f"{key} {value:,}" if isinstance(value, int) else f"{key} {value}"
-                             for key, value in row.items() if key != "stage")
-            self.line(f"  {row.get('stage', '')}: {rest}")
-            return
-        if "clusters" in row and "rounds" not in row:  # one hierarchy round
-            self.line(f"  {row['stage']:<22} {row['seconds']:8.2f} s  clusters {row['clusters']:,}  "
-                      f"edges {row['edges']:,}  ({row.get('where', 'memory')})")
-            return
-        extra = ""
-        if "cut_after" in row:
-            extra = f"  cut {row['cut_after']:.4f}" if "cut_before" not in row else \
-                f"  cut {row['cut_before']:.4f} → {row['cut_after']:.4f}"
-        if "rounds" in row:
-            extra += f"  {row['rounds']} rounds, clusters {' → '.join(f'{c:,}' for c in row['clusters'])}"
-        self.line(f"{row['stage']:<24} {row['seconds']:8.2f} s{extra}")
-        self._advance(str(row["stage"]))
 
 
 def _summary(report):

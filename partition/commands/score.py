@@ -43,13 +43,50 @@ def run(args) -> int:
     graph = graph_from_args(args)
     parts = read_assignment(args.assignment, graph, k=k)
     result = score(graph, parts, k=k, eps=eps)
+    published = _published(args.graph, result)
     if args.json:
         figures = result.to_dict()
-        figures.update({"graph": str(args.graph), "assignment": str(args.assignment)})
+        figures.update({"graph": str(args.graph), "assignment": str(args.assignment), "published": published})
         print(json.dumps(figures, indent=2, sort_keys=True))
     else:
         _print_tables(result, args)
+        _print_published(published, result)
     return 0
+
+
+def _published(graph_path, s):
+    """Published figures for this graph and k when it is a catalog graph (:mod:`partition.report.references`)."""
+    from partition.report.references import find_catalog_entry, reference_rows
+
+    entry = find_catalog_entry(graph_path)
+    rows = reference_rows(entry, s.k, s.cut_edges, s.n_edges, s.eps)
+    return {"graph": entry["name"], "matched_by": entry["matched_by"], "rows": rows} if rows else None
+
+
+def _print_published(published, s):
+    if not published:
+        return
+    from rich.console import Console
+    from rich.table import Table
+
+    console = Console()
+    table = Table(title=f"published figures for {published['graph']}, k = {s.k} (ours / best published)")
+    for name in ("ε", "figure", "ours", "published", "ours / published", "from memory"):
+        table.add_column(name, justify="right")
+    for r in published["rows"]:
+        fmt = (lambda v: f"{v:,.0f}") if r["metric"] == "cut_edges" else (lambda v: f"{v:.4f}")
+        table.add_row(f"{r['imbalance']:g}" + (" *" if r["same_eps"] else ""), r["metric"].replace("_", " "),
+                      fmt(r["ours"]), fmt(r["published"]), "—" if r["ratio"] is None else f"{r['ratio']:.3f}",
+                      "yes" if r["from_memory"] else "no")
+    console.print(table)
+    if any(r["same_eps"] for r in published["rows"]):
+        console.print("* the ε given with --imbalance")
+    if any(r["from_memory"] for r in published["rows"]):
+        console.print("from memory: the value was recalled, not checked against the source")
+    for source in dict.fromkeys(r["citation"] for r in published["rows"]):
+        console.print(f"source: {source}")
+    for note in dict.fromkeys(r["note"] for r in published["rows"] if r.get("note")):
+        console.print(f"note: {note}")
 
 
 def _number(x):

@@ -240,7 +240,8 @@ def _now_utc():
     return datetime.datetime.now(datetime.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
 
 
-def export_run(assignment, out_dir, fmt="parquet", report=None, graph=None, force=False, created=None):
+def export_run(assignment, out_dir, fmt="parquet", report=None, graph=None, force=False, created=None,
+               progress=None):
     """Write a run's placement, per-shard node lists and a manifest into a new folder.
 
     Parameters
@@ -259,6 +260,8 @@ def export_run(assignment, out_dir, fmt="parquet", report=None, graph=None, forc
         Replace an existing folder.
     created : str, optional
         Creation time to record (default: now, UTC, ISO 8601).
+    progress : partition.progress.Progress, optional
+        Gets one counted stage over the ``k + 1`` tables written.
 
     Returns
     -------
@@ -290,7 +293,7 @@ def export_run(assignment, out_dir, fmt="parquet", report=None, graph=None, forc
         raise InputError(assignment, f"uses shard {int(shards.max())} but the report says k = {k}")
     ids, shards = _sorted_rows(ids, shards)
     manifest = manifest_head(rep, fmt, graph_path, graph_sum, assignment, report_path, created)
-    return publish_export(out_dir, manifest, lambda tmp: _write_all(tmp, ids, shards, k, fmt))
+    return publish_export(out_dir, manifest, lambda tmp: _write_all(tmp, ids, shards, k, fmt, progress))
 
 
 def check_export(assignment, out_dir, fmt, report, graph, force):
@@ -390,8 +393,10 @@ def _umask():
     return mask
 
 
-def _write_all(folder, ids, shards, k, fmt):
+def _write_all(folder, ids, shards, k, fmt, progress=None):
     """Write the assignment and the per-shard files; returns the manifest's file list."""
+    if progress is not None:
+        progress.task(f"export: writing {k + 1:,} {fmt} tables", total=k + 1)
     ext = _EXT[fmt]
     files = []
     node_arr = _id_array(ids)
@@ -401,6 +406,8 @@ def _write_all(folder, ids, shards, k, fmt):
         _write_table(path, table, fmt)
         files.append({"path": rel, "sha256": file_sha256(path), "bytes": os.path.getsize(path),
                       "rows": table.num_rows, "shard": shard})
+        if progress is not None:
+            progress.advance()
 
     put(f"assignment.{ext}", pa.table({"node": node_arr, "shard": pa.array(shards, type=pa.int64())}))
     os.makedirs(os.path.join(folder, "shards"))
@@ -411,6 +418,8 @@ def _write_all(folder, ids, shards, k, fmt):
     for s in range(k):
         rows = by_shard[bounds[s]:bounds[s + 1]]
         put(f"shards/shard-{s:0{width}d}.{ext}", pa.table({"node": node_arr.take(pa.array(rows))}), shard=s)
+    if progress is not None:
+        progress.done()
     return files
 
 
