@@ -1,11 +1,17 @@
 """Read edge lists with Spark and normalise them exactly like :func:`partition.graph.build_graph`.
 
-Input: text edge lists (one ``u v`` or ``u v w`` pair a line; whitespace, tabs
-or commas between fields; lines whose first non-blank character is ``#`` or
-``%`` are comments; gzip/bzip2 by Spark's codecs) and Parquet (the first two
-columns, or named ones, and a weight column). A node-weights file holds
-``id weight`` text rows. Normalisation follows the in-memory builder: ids are
-integers when every id is an int64, else strings; dense ids in sorted id order
+Input: text edge lists (one ``u v`` or ``u v w`` pair a line; blanks, tabs,
+commas or semicolons between fields; lines whose first non-blank character is
+``#`` or ``%`` are comments; gzip/bzip2 by Spark's codecs), CSV/TSV and Parquet
+(the first two columns, or named ones, and a weight column). A node-weights
+file holds ``id weight`` text rows. The reading rules are those of
+:mod:`partition.edgelist`, decided by the same code where it can run on the
+driver (delimiter sniffing, column choice) and by the same tests in Spark SQL
+otherwise: ids follow :mod:`partition.ids` (integers only when every id is a
+canonical int64, tested with :func:`partition.ids.CANONICAL_INT_SQL`, else
+strings kept byte for byte), a line that is not UTF-8 is an error naming it
+(``is_valid_utf8``), and the header rule is the same. Normalisation follows
+the in-memory builder: dense ids in sorted id order
 (integer ids: sorted on the driver, which holds O(n) arrays anyway, and found
 per edge by binary search in a broadcast copy; string ids: a range-partitioned
 rank, :func:`partition.spark.frames.dense_rank`, and joins); edges
@@ -22,7 +28,9 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from partition.edgelist import decode_delimiter, pick_columns, sniff_delimiter
 from partition.errors import InputError
+from partition.ids import CANONICAL_INT_SQL
 from partition.spark.frames import dense_rank, to_numpy
 
 __all__ = ["SparkGraph", "read_graph_df", "collect_graph", "detect_format"]
@@ -59,7 +67,7 @@ class SparkGraph:
 
 def detect_format(path, fmt="auto"):
     """The input format: folders of Parquet parts are ``"parquet"``, else as :func:`partition.edgelist.detect_format`."""
-    from partition.edgelist import detect_format as by_name
+    from partition.edgelist import detect_format as by_name  # noqa: F811 - the in-memory rule for files
 
     if fmt != "auto":
         return by_name(path, fmt)
@@ -138,7 +146,7 @@ def _data_lines(src):
     return df.select(F.regexp_replace("line", "\r$", "").alias("line"), "key")
 
 
-def _csv_fields(src, delim, header, wanted, weighted):
+def _csv_fields(src, delim, header, wanted, weighted, kind):
     """CSV/TSV rows as ``s``, ``d`` (strings), ``key`` and ``w`` (double) when weighted.
 
     Follows :func:`partition.edgelist.read_graph` on CSV/TSV: comment and blank
@@ -153,18 +161,21 @@ def _csv_fields(src, delim, header, wanted, weighted):
 
     from pyspark.sql import functions as F
 
-    from partition.edgelist import _pick_columns
-
     path = src.path
     lines = _data_lines(src)
-    first = lines.orderBy("key").limit(1).collect()
+    _refuse_invalid_utf8(src, lines)
+    first = lines.orderBy("key").limit(5).collect()
     if not first:
         raise InputError(path, "the file is empty")
+    delim = delim or sniff_delimiter([r["line"] for r in first], kind)
     head = next(csv.reader(io.StringIO(first[0]["line"]), delimiter=delim))
     width = len(head)
-    names = [h.strip() for h in head] if header else [str(i + 1) for i in range(width)]
-    chosen = _pick_columns(path, names, wanted, weighted, 3)
-    body = lines.filter(F.col("key") != first[0]["key"]) if header else lines
+    if header is None and width and all(_is_number(f) for f in head):
+        raise src.error(f"the first row {first[0]['line'].strip()[:80]!r} looks like data, not a header: pass "
+                        "--no-header to read it as data (or --header if it names the columns)", first[0]["key"])
+    names = [h.strip() for h in head] if header is not False else [str(i + 1) for i in range(width)]
+    chosen = pick_columns(path, names, wanted, weighted, 3, delim)
+    body = lines.filter(F.col("key") != first[0]["key"]) if header is not False else lines
     plain = ~F.col("line").contains('"')
     bad = body.filter(plain & (F.size(F.split("line", re.escape(delim))) != width))
     got = _first(bad)
@@ -184,15 +195,69 @@ def _csv_fields(src, delim, header, wanted, weighted):
     return raw
 
 
-def _text_fields(src, need):
-    """Data lines of a text source as ``f`` (fields array) and ``key`` (see :class:`_Source`)."""
+def _text_fields(src, need, delimiter=None):
+    """Data lines of a text source as ``f`` (fields array) and ``key`` (see :class:`_Source`).
+
+    Fields are split on runs of blanks, tabs, commas and semicolons (or on the
+    given delimiter), as the in-memory reader's line parser does.
+    """
+    import re
+
     from pyspark.sql import functions as F
 
-    df = _data_lines(src).select(F.split(F.trim("line"), r"[\s,]+").alias("f"), "key")
-    bad = _first(df.filter(F.size("f") < need))
+    lines = _data_lines(src)
+    split = r"[\s,;]+" if delimiter is None else (rf"\s*{re.escape(delimiter)}\s*" if delimiter.strip() else r"\s+")
+    df = lines.select(F.array_remove(F.split(F.trim("line"), split), "").alias("f"), "key", "line")
+    bad = df.filter((F.size("f") != need) | ~F.is_valid_utf8("line")).agg(F.min_by("line", "key").alias("line"),
+                                                                          F.min("key").alias("key")).collect()[0]
+    if bad["key"] is not None:
+        _refuse_invalid_utf8(src, lines.filter(F.col("key") == bad["key"]))
+        found = len([f for f in re.split(split, (bad["line"] or "").strip()) if f])
+        hint = "; pass --weighted to read the third field as an edge weight" if need == 2 and found == 3 else ""
+        raise src.error(f"expected {need} fields, found {found}: {bad['line'].strip()[:80]!r}{hint}", bad["key"])
+    return df.drop("line")
+
+
+def _refuse_invalid_utf8(src, lines):
+    """The first line of ``lines`` that is not valid UTF-8, as an error naming it (Spark keeps the raw bytes)."""
+    from pyspark.sql import functions as F
+
+    bad = _first(lines.filter(~F.is_valid_utf8("line")))
     if bad is not None:
-        raise src.error(f"expected at least {need} fields", bad)
-    return df
+        raise src.error("is not valid UTF-8 text; ids must be UTF-8 text", bad)
+
+
+def _is_number(text):
+    try:
+        float(text)
+    except ValueError:
+        return False
+    return True
+
+
+def _text_header(src, raw, header, weighted, canon):
+    """The header rule on a text edge list: skip the first line (``header``) or refuse one that looks like a header.
+
+    As :mod:`partition.edgelist`: with ``header`` unset, a first line whose
+    ids are not canonical integers above lines whose ids all are (or whose
+    weight is not a number above lines whose weights all are) stops the read.
+    """
+    from pyspark.sql import functions as F
+
+    if header:
+        return raw.filter(F.col("key") != _first(raw))
+    bad_ids = ~(canon("s") & canon("d"))
+    checks = [bad_ids] + ([F.col("w").isNull()] if weighted else [])
+    aggs = [F.min("key").alias("first")]
+    for i, cond in enumerate(checks):
+        aggs += [F.sum(cond.cast("long")).alias(f"n{i}"), F.min(F.when(cond, F.col("key"))).alias(f"k{i}")]
+    got = raw.agg(*aggs, F.count("*").alias("rows")).collect()[0]
+    if got["rows"] > 1 and any(got[f"n{i}"] == 1 and got[f"k{i}"] == got["first"] for i in range(len(checks))):
+        first = raw.filter(F.col("key") == got["first"]).collect()[0]
+        shown = " ".join(str(first[c]) for c in ("s", "d"))
+        raise src.error(f"the first line {shown!r} looks like a header (every later line is numeric): pass "
+                        "--header to skip it, or --no-header to read it as data", got["first"])
+    return raw
 
 
 def _weights_ok(src, df, col, what="weight", integer=False):
@@ -227,9 +292,10 @@ def read_graph_df(spark, path, fmt="auto", weighted=False, source_column=None, t
     allow_isolated : bool
         Ids of the node-weights file without edges become isolated nodes.
     header : bool or None
-        CSV/TSV: whether the first row names the columns (default True).
+        Whether the first data line is a header; ``None``: the header rule of
+        :mod:`partition.edgelist`.
     delimiter : str or None
-        CSV/TSV field delimiter (default ``,`` / tab).
+        Field delimiter (default: as :mod:`partition.edgelist` detects it).
 
     Returns
     -------
@@ -246,17 +312,20 @@ def read_graph_df(spark, path, fmt="auto", weighted=False, source_column=None, t
     if weight_column is not None:
         weighted = True
     fmt = detect_format(path, fmt)
+    delimiter = decode_delimiter(delimiter)
+    canon = lambda c: F.expr(CANONICAL_INT_SQL(c))  # noqa: E731
     if fmt == "text":
         src = _Source(spark, path)
-        df = _text_fields(src, 3 if weighted else 2)
+        df = _text_fields(src, 3 if weighted else 2, delimiter)
         cols = [F.col("f")[0].alias("s"), F.col("f")[1].alias("d"), "key"]
         if weighted:
             cols.append(F.expr("try_cast(f[2] as double)").alias("w"))
         raw = df.select(*cols)
+        if header is not False:
+            raw = _text_header(src, raw, header, weighted, canon)
     elif fmt in ("csv", "tsv"):
-        delim = delimiter or ("," if fmt == "csv" else "\t")
         src = _Source(spark, path)
-        raw = _csv_fields(src, delim, header is not False, [source_column, target_column, weight_column], weighted)
+        raw = _csv_fields(src, delimiter, header, [source_column, target_column, weight_column], weighted, fmt)
     else:
         src = _Source(spark, path, "parquet")
         pq = src.read()
@@ -270,6 +339,11 @@ def read_graph_df(spark, path, fmt="auto", weighted=False, source_column=None, t
         for c in chosen:
             if c not in names:
                 raise InputError(path, f"no column named {c!r} (columns: {', '.join(names)})")
+        kinds = dict(pq.dtypes)
+        for c, label in zip(chosen[:2], ("source", "target")):
+            if kinds[c] in ("float", "double") or kinds[c].startswith("decimal") and not kinds[c].endswith(",0)"):
+                raise InputError(path, f"the {label} column holds floating-point numbers; ids must be integers "
+                                       "or text")
         cols = [F.col(chosen[0]).cast("string").alias("s"), F.col(chosen[1]).cast("string").alias("d"), "key"]
         if weighted:
             cols.append(F.col(chosen[2]).cast("double").alias("w"))
@@ -295,7 +369,7 @@ def read_graph_df(spark, path, fmt="auto", weighted=False, source_column=None, t
     allids = id_cols[0]
     for extra in id_cols[1:]:
         allids = allids.unionByName(extra)
-    non_int = allids.filter(F.expr("try_cast(id as bigint)").isNull()).limit(1).count()
+    non_int = allids.filter(~canon("id")).limit(1).count()
     id_kind = "str" if non_int else "int"
     extra = ["w"] if weighted else []
     if id_kind == "int":
