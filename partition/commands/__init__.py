@@ -10,4 +10,5 @@ COMMANDS = [
     "export",
     "recut",
     "place",
+    "workload",
 ]
