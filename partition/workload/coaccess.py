@@ -67,7 +67,7 @@ def _count_pairs(indptr, limit, skip):  # pragma: no cover - compiled
 
 
 @numba.njit(cache=True, nogil=True)
-def _emit_pairs(indptr, members, n_keys, limit, skip, seed, unit, out_key, out_w):  # pragma: no cover - compiled
+def _emit_pairs(indptr, members, n_keys, limit, skip, seed, unit, r0, out_key, out_w):  # pragma: no cover - compiled
     pos = 0
     buf = np.empty(limit, dtype=np.int64)
     for r in range(indptr.shape[0] - 1):
@@ -80,7 +80,7 @@ def _emit_pairs(indptr, members, n_keys, limit, skip, seed, unit, out_key, out_w
                 continue
             # seeded partial Fisher-Yates over a copy: the first `limit` keys of a shuffle
             tmp = members[a:b].astype(np.int64)
-            state = np.uint64(seed) ^ (np.uint64(r) * np.uint64(0x9E3779B97F4A7C15))
+            state = np.uint64(seed) ^ (np.uint64(r0 + r) * np.uint64(0x9E3779B97F4A7C15))
             for i in range(limit):
                 state = state * np.uint64(6364136223846793005) + np.uint64(1442695040888963407)
                 j = i + np.int64((state >> np.uint64(33)) % np.uint64(s - i))
@@ -130,7 +130,17 @@ def key_loads(log, half_life=None):
     return np.rint(load * 1000.0).astype(np.int64)
 
 
-def coaccess_pairs(log, max_keys=100, large="sample", seed=0):
+def sum_by_key(keys, weights):
+    """Distinct ``keys`` in ascending order with the sums of their ``weights``."""
+    order = np.argsort(keys, kind="stable")
+    keys, weights = keys[order], weights[order]
+    if not keys.size:
+        return keys, weights
+    starts = np.flatnonzero(np.concatenate(([True], keys[1:] != keys[:-1])))
+    return keys[starts], np.add.reduceat(weights, starts)
+
+
+def coaccess_pairs(log, max_keys=100, large="sample", seed=0, first_request=0):
     """Distinct key pairs ``(u, v)`` with ``u < v`` and their summed fixed-point weights.
 
     Parameters
@@ -141,6 +151,9 @@ def coaccess_pairs(log, max_keys=100, large="sample", seed=0):
     large : {"sample", "skip"}
         What happens to a request above the limit.
     seed : int
+    first_request : int
+        Position of the log's first request in the whole log (the sample of a
+        large request depends on the seed and its position).
 
     Returns
     -------
@@ -160,15 +173,8 @@ def coaccess_pairs(log, max_keys=100, large="sample", seed=0):
     keys = np.empty(total, dtype=np.int64)
     wts = np.empty(total, dtype=np.int64)
     _emit_pairs(indptr, log.members, np.int64(log.n_keys), limit, skip, np.uint64(seed & (2**64 - 1)),
-                np.int64(WEIGHT_UNIT), keys, wts)
-    order = np.argsort(keys, kind="stable")
-    keys, wts = keys[order], wts[order]
-    if keys.size:
-        starts = np.flatnonzero(np.concatenate(([True], keys[1:] != keys[:-1])))
-        w = np.add.reduceat(wts, starts)
-        keys = keys[starts]
-    else:
-        w = wts
+                np.int64(WEIGHT_UNIT), np.int64(first_request), keys, wts)
+    keys, w = sum_by_key(keys, wts)
     sizes = log.sizes()
     over = sizes > limit
     report = {"requests": log.n_requests, "keys": log.n_keys, "accesses": int(sizes.sum()),

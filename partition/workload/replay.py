@@ -190,7 +190,8 @@ def replay(train, test, table, k, cache_fractions=(0.005, 0.01, 0.02, 0.05), see
              "placed_online": int(placed),
              "placed_on_hash_shard": int(np.sum(full[new_keys] == hashed[new_keys])),
              "rule": "at its first request: the shard holding most of that request's placed keys "
-                     "(ties: the shard of the request key with the smallest key hash), else its key hash"}
+                     "(ties: the shard of the request key with the smallest key hash); when none is placed, the key-hash "
+                     "shard of the request's key with the smallest key hash"}
     sharded = {}
     for name, tab in (("hash", hashed), ("partition", full)):
         sharded[name] = fanout_figures(test, tab, k)

@@ -6,8 +6,8 @@ shards of its keys (its fan-out). Two key tables are compared: ``hash``
 the hash is :func:`partition.placement.bounded_hash.key_hashes`) and
 ``partition`` (the workload partition). Keys a partition has never seen are
 placed online, at their first request, on the shard that holds most of that
-request's placed keys (ties as below), or by their hash when none is placed;
-then they stay there.
+request's placed keys (ties as below); when none of its keys is placed, on the
+key-hash shard of its key with the smallest key hash. Then they stay there.
 
 Replicated data: every replica holds all keys and one replica serves each
 request. Policies:
@@ -92,10 +92,16 @@ def _place_unseen(indptr, members, table, fallback, rank, k):  # pragma: no cove
         if not missing:
             continue
         s = _majority(a, b, members, table, rank, k, count)
+        if s < 0:  # nothing placed yet: the request's key of the smallest key hash decides by its hash
+            first, first_rank = -1, np.int64(1) << 62
+            for p in range(a, b):
+                if rank[members[p]] < first_rank:
+                    first, first_rank = members[p], rank[members[p]]
+            s = fallback[first]
         for p in range(a, b):
             key = members[p]
             if table[key] < 0:
-                table[key] = fallback[key] if s < 0 else s
+                table[key] = s
                 placed += 1
     return placed
 
