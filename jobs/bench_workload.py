@@ -32,7 +32,7 @@ RETAIL = ROOT.parent / "shared" / "datasets" / "retail-baskets.dat.gz"
 
 
 def _child(case, path, k, eps, frac, nets, seed):
-    from partition.workload.log import read_log
+    from partition.workload.readers import read_log
     from partition.workload.pipeline import partition_workload
     from partition.workload.replay import replay
 
@@ -93,7 +93,7 @@ def _spark_check():
     from partition.spark.coaccess import coaccess_frames
     from partition.spark.session import spark_session
     from partition.workload.coaccess import coaccess_pairs
-    from partition.workload.log import read_log
+    from partition.workload.readers import read_log
 
     log = read_log(RETAIL)
     train = log.split(train_fraction=0.7)[0]

@@ -7,7 +7,7 @@ import numpy as np
 from partition.assignment import read_assignment
 from partition.cli import main
 from partition.edgelist import read_graph
-from partition.workload.log import read_log
+from partition.workload.readers import read_log
 from partition.workload.tables import read_key_table
 
 

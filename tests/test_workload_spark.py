@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 
 from partition.workload.coaccess import coaccess_pairs
-from partition.workload.log import read_log
+from partition.workload.readers import read_log
 from partition.workload.synthetic import library_workload, write_log
 
 pytestmark = pytest.mark.spark

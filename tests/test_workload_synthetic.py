@@ -7,7 +7,7 @@ import numpy as np
 from partition.workload.pipeline import partition_workload
 from partition.workload.replay import replay
 from partition.workload.synthetic import library_workload, write_log
-from partition.workload.log import read_log
+from partition.workload.readers import read_log
 
 
 def test_same_seed_same_log_and_round_trip(tmp_path):

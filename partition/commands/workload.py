@@ -133,7 +133,7 @@ def run(args) -> int:
 
 
 def _read(args):
-    from partition.workload.log import read_log
+    from partition.workload.readers import read_log
 
     return read_log(args.log, fmt=args.log_format, request_column=args.request_column, key_column=args.key_column,
                     time_column=args.time_column, delimiter=args.delimiter)

@@ -51,7 +51,8 @@ def read_key_table(path, log, k=None):
 
     name, tab, raw = open_node_shards(path)
     if tab is None:
-        delim = "\t" if name.lower().rstrip(".gz").endswith(".tsv") else ","
+        base = name.lower()[:-3] if name.lower().endswith(".gz") else name.lower()
+        delim = "\t" if base.endswith(".tsv") else ","
         header = [h.strip().strip('"') for h in raw.split(b"\n", 1)[0].decode("utf-8", "replace").split(delim)]
         try:
             tab = pacsv.read_csv(io.BytesIO(raw), parse_options=pacsv.ParseOptions(delimiter=delim),

@@ -1,4 +1,4 @@
-"""Tests of partition.workload.log: request-log readers, the key rule, time order and errors."""
+"""Tests of partition.workload.readers and partition.workload.log: request-log formats, the key rule, time order, errors."""
 
 import gzip
 import json
@@ -10,7 +10,8 @@ import pyarrow.parquet as pq
 import pytest
 
 from partition.errors import InputError, ParameterError
-from partition.workload.log import log_from_lists, read_log
+from partition.workload.log import log_from_lists
+from partition.workload.readers import read_log
 
 SHARED = Path(__file__).resolve().parents[2] / "shared" / "datasets"
 
