@@ -11,4 +11,5 @@ COMMANDS = [
     "recut",
     "place",
     "report",
+    "workload",
 ]
