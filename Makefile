@@ -11,8 +11,7 @@ setup: $(STAMP)
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
 	$(BIN)/pip install --quiet --upgrade pip
-	$(BIN)/pip install --quiet -e '.[test]'
-	$(BIN)/pip install --quiet -e '.[report]'
+	$(BIN)/pip install --quiet -e '.[test,spark,report]'
 	touch $(STAMP)
 
 # The demo runs the Spark engine on local Spark (distributed mode), then scores its output.

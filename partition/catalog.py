@@ -1,9 +1,9 @@
 """Catalog of public graphs: list them, fetch them, verify what was fetched.
 
-The catalog (``datasets/catalog.json`` beside the package) names each graph's
-collection, upstream download address and format, its node and edge counts
-after normalisation (undirected, duplicates merged, self-loops dropped), and
-three checksums:
+The catalog (``partition/data/catalog.json``, shipped as package data so an
+installed copy finds it) names each graph's collection, upstream download
+address and format, its node and edge counts after normalisation (undirected,
+duplicates merged, self-loops dropped), and three checksums:
 
 ``file_sha256``
     sha256 of the exact file in Shardline's edge-list form (``file``); checked
@@ -62,7 +62,7 @@ __all__ = [
     "read_pairs",
 ]
 
-DEFAULT_CATALOG = Path(__file__).resolve().parents[1] / "datasets" / "catalog.json"
+DEFAULT_CATALOG = Path(__file__).resolve().parent / "data" / "catalog.json"
 
 _REQUIRED = (
     "name", "collection", "kind", "url", "upstream_format", "nodes", "edges", "file",

@@ -27,10 +27,8 @@ import warnings
 
 import numba
 import numpy as np
-import scipy.linalg
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
-from scipy.sparse.linalg import lobpcg
 
 from partition.errors import ParameterError
 from partition.rules import canonical_labels
@@ -370,6 +368,9 @@ def _fiedler(a, rng):
     (1994) in place of a cold start, which on road networks needs thousands of
     iterations.
     """
+    import scipy.linalg  # here, not at import: only the spectral start needs it
+    from scipy.sparse.linalg import lobpcg
+
     nc = a.shape[0]
     d = np.asarray(a.sum(axis=1)).ravel()
     d[d <= 0] = 1.0  # zero-weight edges only: treat the node as weakly attached
@@ -394,6 +395,8 @@ def _fiedler(a, rng):
 
 def _coarse_start(a, d):
     """Coarse Fiedler vector of the component, one value per node."""
+    import scipy.linalg
+
     from partition.affinity import edge_affinity
     from partition.graph import Graph
     from partition.hierarchy import build_hierarchy

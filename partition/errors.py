@@ -62,3 +62,20 @@ def check_imbalance(eps):
     if not (eps >= 0.0) or eps != eps or eps == float("inf"):
         raise ParameterError(f"imbalance must be a finite number >= 0, got {eps!r}")
     return eps
+
+
+def check_move_cost(move_cost):
+    """Validate a move cost ``λ``: a finite number ``>= 0``; returns it as float.
+
+    Raises
+    ------
+    ParameterError
+        Not a number, negative, NaN or infinite.
+    """
+    try:
+        lam = float(move_cost)
+    except (TypeError, ValueError):
+        raise ParameterError(f"move cost must be a number, got {move_cost!r}") from None
+    if not (lam == lam and lam not in (float("inf"), float("-inf")) and lam >= 0):
+        raise ParameterError(f"move cost must be a finite number >= 0, got {move_cost!r}")
+    return lam

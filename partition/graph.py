@@ -181,7 +181,7 @@ def dense_ids(columns):
     Notes
     -----
     Non-negative integer ids below ``max(4 · entries, 2^24)`` are mapped with a
-    presence array (linear time); other ids by hashing (``pandas.factorize``)
+    presence array (linear time); other ids by hashing (:func:`_factorize`)
     and sorting the distinct ids only.
     """
     sizes = [len(c) for c in columns]
@@ -194,10 +194,7 @@ def dense_ids(columns):
         remap = np.cumsum(present, dtype=np.int64) - 1
         ids = np.flatnonzero(present).astype(np.int64)
         return ids, [remap[c] for c in columns]
-    import pandas as pd
-
-    codes, uniques = pd.factorize(allv, sort=False)
-    uniques = np.asarray(uniques, dtype=allv.dtype)
+    codes, uniques = _factorize(allv)
     order = np.argsort(uniques, kind="stable")
     rank = np.empty(order.size, dtype=np.int64)
     rank[order] = np.arange(order.size, dtype=np.int64)
@@ -208,6 +205,30 @@ def dense_ids(columns):
         out.append(inverse[start : start + s])
         start += s
     return ids, out
+
+
+def _factorize(values):
+    """Codes and distinct values of ``values`` in first-seen order, by hashing.
+
+    ``pandas.factorize`` when pandas is installed (it comes with the Spark
+    extra and is the faster of the two), else pyarrow's ``dictionary_encode``;
+    the caller sorts the distinct values, so the result does not depend on which.
+    """
+    try:
+        import pandas as pd
+    except ImportError:
+        return _factorize_arrow(values)
+    codes, uniques = pd.factorize(values, sort=False)
+    return codes, np.asarray(uniques, dtype=values.dtype)
+
+
+def _factorize_arrow(values):
+    """:func:`_factorize` with pyarrow alone (the base install has no pandas)."""
+    import pyarrow as pa
+
+    encoded = pa.array(values, from_pandas=False).dictionary_encode()
+    codes = encoded.indices.to_numpy(zero_copy_only=False).astype(np.int64, copy=False)
+    return codes, np.asarray(encoded.dictionary.to_numpy(zero_copy_only=False), dtype=values.dtype)
 
 
 def build_graph(src, dst, weights=None, node_ids=None, node_weights=None, source=None, ids=None):

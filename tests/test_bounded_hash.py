@@ -368,9 +368,9 @@ def test_command_assign_writes_the_library_placement(tmp_path, capsys):
                  "--seed", "1", "-o", str(out), "--json"]) == 0
     fig = json.loads(capsys.readouterr().out)
     rows = [line.split(",") for line in out.read_text().splitlines()]
-    assert rows[0] == ["key", "shard"]
+    assert rows[0] == ["node", "shard"]  # the node,shard columns of every command
     got = {k: int(s) for k, s in rows[1:]}
-    want = bounded_assign(keys, list(range(6)), 0.2, seed=1)
+    want = bounded_assign(keys, list(range(6)), 0.2, seed=1, points_per_shard=ring_cmd.DEFAULT_POINTS)
     assert got == dict(zip(keys, want.tolist()))
     assert fig["capacity"] == 60 and fig["max_load"] <= 60  # ⌈1.2·300/6⌉ = 60
 
@@ -378,14 +378,16 @@ def test_command_assign_writes_the_library_placement(tmp_path, capsys):
 def test_command_moves_counts(tmp_path, capsys):
     (tmp_path / "k.csv").write_text("id,name\n" + "".join(f"{i},x{i}\n" for i in range(1000)))
     moved = tmp_path / "moved.csv"
-    assert _run(["moves", str(tmp_path / "k.csv"), "--column", "id", "--integer-keys", "--shards", "8",
+    assert _run(["moves", str(tmp_path / "k.csv"), "--column", "id", "--integer-keys", "-k", "8",
                  "--remove", "2", "--seed", "3", "--json", "-o", str(moved)]) == 0
     fig = json.loads(capsys.readouterr().out)
     keys = np.arange(1000)
-    b = bounded_assign(keys, range(8), 0.25, seed=3)
-    a = bounded_assign(keys, [s for s in range(8) if s != 2], 0.25, seed=3)
+    pts = ring_cmd.DEFAULT_POINTS  # defaults: ε = 0 as in every command, DEFAULT_POINTS points per shard
+    b = bounded_assign(keys, range(8), 0.0, seed=3, points_per_shard=pts)
+    a = bounded_assign(keys, [s for s in range(8) if s != 2], 0.0, seed=3, points_per_shard=pts)
     assert fig["moved"]["bounded"] == int((a != b).sum()) == len(moved.read_text().splitlines()) - 1
-    c0 = consistent_assign(keys, range(8), seed=3)
+    assert moved.read_text().splitlines()[0] == "node,from,to"
+    c0 = consistent_assign(keys, range(8), seed=3, points_per_shard=pts)
     assert fig["moved"]["consistent"] == int((c0 == 2).sum())  # only the removed shard's keys
 
 

@@ -333,3 +333,12 @@ def test_cli_main_reports_unknown_name(capsys):
 
     assert main(["datasets", "fetch", "no-such-graph"]) == 2
     assert "shardline: error: no dataset called 'no-such-graph'" in capsys.readouterr().err
+
+
+def test_cli_list_never_cuts_a_name(capsys, monkeypatch):
+    # a narrow terminal: every name and file still appears whole, so it can be pasted into 'datasets fetch'
+    monkeypatch.setenv("COLUMNS", "40")
+    status, out = _run(["list"], capsys)
+    assert status == 0
+    for entry in list_datasets():
+        assert entry["name"] in out and entry["file"] in out, entry["name"]

@@ -123,10 +123,13 @@ def _files(tmp_path):
 def test_diff_command_json_and_plan_file(tmp_path, capsys):
     old, new = _files(tmp_path)
     out = tmp_path / "plan.csv"
-    assert main(["diff", str(old), str(new), "-o", str(out), "--json"]) == 0
+    moves = tmp_path / "moves.csv"
+    assert main(["diff", str(old), str(new), "-o", str(moves), "--pairs", str(out), "--json"]) == 0
     got = json.loads(capsys.readouterr().out)
     assert got["totals"]["moved_nodes"] == 2 and got["totals"]["moved_fraction"] == 0.5  # hand count above
     assert out.read_text().splitlines() == ["from_shard,to_shard,nodes,weight", "1,0,1,1", "2,0,1,1", ",2,1,1", "0,,1,1"]
+    # the per-node move list, by hand from the two files: 1 removed from 0, 3 1→0, 5 2→0, 6 added on 2
+    assert moves.read_text().splitlines() == ["node,from,to", "1,0,", "3,1,0", "5,2,0", "6,,2"]
     assert main(["diff", str(old), str(new)]) == 0
     assert "moved fraction" in capsys.readouterr().out
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 import math
 
 import numpy as np
@@ -280,3 +281,18 @@ def test_place_command(tmp_path, capsys):
     assert main(["place", str(placement), str(bad), "-o", str(tmp_path / "x.csv"), "--ignore-unplaced",
                  "--capacity", "2", "--rejected", str(rej)]) == 0
     assert rej.read_text() == "node\n5\n6\n"  # every shard already holds 2
+
+
+def test_place_command_writes_the_merged_placement_and_a_report(tmp_path, capsys):
+    placement = tmp_path / "p.csv"
+    placement.write_text("node,shard\n1,0\n2,0\n3,1\n4,1\n")
+    arrivals = tmp_path / "a.txt"
+    arrivals.write_text("5 1\n5 2\n6 6\n")
+    out, merged = tmp_path / "new.csv", tmp_path / "all.csv"
+    assert main(["place", str(placement), str(arrivals), "-o", str(out), "--merged", str(merged), "--quiet"]) == 0
+    assert capsys.readouterr().out == ""
+    # by hand: 5 has both edges to shard 0; 6 has none and goes to the least filled shard, 1
+    assert out.read_text() == "node,shard\n5,0\n6,1\n"
+    assert merged.read_text() == "node,shard\n1,0\n2,0\n3,1\n4,1\n5,0\n6,1\n"
+    report = json.loads((tmp_path / "new.csv.report.json").read_text())
+    assert report["merged_nodes"] == 6 and report["per_shard_after"] == [3, 3] and report["imbalance_allowed"] == 0.0

@@ -152,7 +152,10 @@ def test_command_writes_one_self_contained_page_and_pngs(small_run, capsys):
     assert float(page.cells["result.imbalance"]) == pytest.approx(res["imbalance"], abs=5e-7)
     assert int(page.cells["k"]) == run.report["k"]
     assert "order by shard" not in text  # the run's linear order was found through the report
-    assert f"{page_path.stat().st_size:,} bytes" in out.out
+    assert out.out == ""  # --quiet: no summary line either
+    assert main(["report", str(tmp / "shards.csv"), "-o", str(page_path), "--no-graph", "--json"]) == 0
+    summary = json.loads(capsys.readouterr().out)
+    assert summary["bytes"] == page_path.stat().st_size and summary["output"] == str(page_path)
 
 
 def test_spy_plot_samples_large_graphs_the_same_way_each_time():

@@ -377,7 +377,7 @@ def test_progress_bar_follows_the_engine_plan_to_the_end():
 
     from rich.console import Console
 
-    from partition.commands.run import _Progress
+    from partition.progress import Progress as _Progress
     from partition.generators import grid2d
     from partition.graph import build_graph
     from partition.partitioner import partition_graph

@@ -17,10 +17,10 @@ from __future__ import annotations
 
 from partition.baselines.labelprop import label_propagation
 from partition.baselines.simple import hash_partition, random_partition, range_partition
-from partition.baselines.streaming import ORDERS, fennel, ldg
+from partition.baselines.streaming import DEFAULT_ORDER, ORDERS, fennel, ldg
 from partition.errors import ParameterError
 
-__all__ = ["METHODS", "ORDERS", "STREAMING", "run_baseline"]
+__all__ = ["DEFAULT_ORDER", "METHODS", "ORDERS", "STREAMING", "run_baseline"]
 
 METHODS = {
     "hash": hash_partition,
@@ -35,7 +35,7 @@ METHODS = {
 STREAMING = frozenset({"ldg", "fennel", "labelprop"})
 
 
-def run_baseline(name, graph, k, eps=0.0, seed=0, order="random", progress=None):
+def run_baseline(name, graph, k, eps=0.0, seed=0, order=DEFAULT_ORDER, progress=None):
     """Run the baseline called ``name``.
 
     Parameters
@@ -49,9 +49,9 @@ def run_baseline(name, graph, k, eps=0.0, seed=0, order="random", progress=None)
         Allowed imbalance ε.
     seed : int
         Seed of every random choice.
-    order : {"random", "bfs", "given"} or array of int
+    order : {"bfs", "dfs", "random", "given"} or array of int
         Node order of the streaming methods (and of label propagation's LDG
-        start); the other methods ignore it.
+        start; default breadth-first); the other methods ignore it.
     progress : callable or None
         Receives the rounds of label propagation (see
         :func:`partition.baselines.labelprop.label_propagation`); the one-pass

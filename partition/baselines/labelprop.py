@@ -104,7 +104,7 @@ def desired_moves(graph, parts, k, rows=None):
     return nodes, target, best[nodes] - own[nodes]
 
 
-def label_propagation(graph, k, eps=0.0, seed=0, order="random", start="ldg", max_rounds=10, patience=2,
+def label_propagation(graph, k, eps=0.0, seed=0, order="bfs", start="ldg", max_rounds=10, patience=2,
                       segments=8, progress=None):
     """Balanced label propagation from a balanced start.
 
@@ -116,7 +116,7 @@ def label_propagation(graph, k, eps=0.0, seed=0, order="random", start="ldg", ma
         Allowed imbalance ε.
     seed : int
         Seed of the start (LDG's random order) and of the tie-breaking keys.
-    order : {"random", "bfs", "given"} or array of int
+    order : {"bfs", "dfs", "random", "given"} or array of int
         Order of the LDG start.
     start : {"ldg", "range"} or ndarray
         The balanced start; an array must already keep the balance rule.

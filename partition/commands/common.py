@@ -1,8 +1,59 @@
-"""Options shared by the subcommands: how to read the input graph."""
+"""Options shared by the subcommands: one definition of each, and how to read the input graph.
+
+Every option that means the same thing in several commands (``-k/--shards``,
+``--imbalance``, ``--seed``, ``--move-cost``, ``--json``, ``--quiet``) is
+defined once in :data:`SHARED_OPTIONS` and added with :func:`add_shared`, so
+its flags, default and help text are the same wherever it appears
+(``tests/test_cli_options.py`` walks every parser to check it). This module
+imports nothing heavy: the command line builds its parsers before it knows
+which command runs.
+"""
 
 from __future__ import annotations
 
-from partition.edgelist import read_graph
+IMBALANCE_HELP = (
+    "allowed imbalance ε >= 0: no shard may weigh more than ⌈(1+ε)·W/K⌉ + w_max − 1 "
+    "(⌈(1+ε)·n/K⌉ for unit weights); default 0: exact balance"
+)
+
+SHARED_OPTIONS = {
+    "shards": (("-k", "--shards"), dict(
+        dest="k", type=int, required=True, metavar="K", help="number of shards K (named 0..K-1)")),
+    "shards_from_file": (("-k", "--shards"), dict(
+        dest="k", type=int, default=None, metavar="K",
+        help="number of shards K (named 0..K-1; default: the largest shard id in the file + 1)")),
+    "shards_planted": (("-k", "--shards"), dict(
+        dest="k", type=int, default=8, metavar="K", help="number of shards K of the planted table (default 8)")),
+    "imbalance": (("--imbalance",), dict(type=float, default=0.0, metavar="EPS", help=IMBALANCE_HELP)),
+    "imbalance_load": (("--imbalance",), dict(
+        type=float, default=0.03, metavar="EPS",
+        help="allowed load imbalance ε >= 0: no shard's load above the strict cap ⌈(1+ε)·W/K⌉ (at least the "
+             "largest key's load); default 0.03, because exact balance of skewed access counts is rarely "
+             "reachable")),
+    "imbalance_check": (("--imbalance",), dict(
+        type=float, default=None, metavar="EPS",
+        help="also check the balance rule for this allowed imbalance ε (default: no check)")),
+    "seed": (("--seed",), dict(
+        type=int, default=0, metavar="S",
+        help="seed of every random choice, hash and tie-break; same seed, same output (default 0)")),
+    "move_cost": (("--move-cost",), dict(
+        type=float, default=1.0, metavar="LAMBDA",
+        help="with --previous: cut weight that moving one unit of node weight costs; 0 only renames shards "
+             "to match OLD, larger values move fewer nodes (default 1: one moved node costs one cut edge)")),
+    "json": (("--json",), dict(action="store_true", help="print the summary as JSON on standard output")),
+    "quiet": (("--quiet",), dict(
+        action="store_true",
+        help="print no progress lines and no summary table (errors and --json output still appear)")),
+}
+"""Each shared option: its flags and the keyword arguments of ``add_argument``."""
+
+
+def add_shared(parser, *names):
+    """Add the shared options ``names`` (keys of :data:`SHARED_OPTIONS`) to ``parser``."""
+    for name in names:
+        flags, kwargs = SHARED_OPTIONS[name]
+        parser.add_argument(*flags, **kwargs)
+    return parser
 
 
 def add_graph_arguments(parser, positional=True):
@@ -32,6 +83,8 @@ def add_graph_arguments(parser, positional=True):
 
 def graph_from_args(args):
     """Read the graph named by the options of :func:`add_graph_arguments`."""
+    from partition.edgelist import read_graph
+
     return read_graph(
         args.graph,
         fmt=args.graph_format,

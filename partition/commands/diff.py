@@ -2,8 +2,12 @@
 
 ``shardline diff OLD NEW`` reads two ``node,shard`` files (CSV/TSV with a
 header, or Parquet), prints how many nodes move between each pair of shards,
-how many are added and removed, and the moved fraction; ``-o PLAN`` writes the
-per-pair table (``.csv``, ``.tsv``, ``.parquet``) atomically. With
+how many are added and removed, and the moved fraction; ``-o MOVES`` writes
+the per-node move list that drives a migration (``node,from,to``, the columns
+``shardline ring moves`` writes; an empty ``from`` for an added node, an empty
+``to`` for a removed one) and ``--pairs PLAN`` the per-pair table
+(``from_shard,to_shard,nodes,weight``), both atomically (``.csv``, ``.tsv``,
+``.parquet``). With
 ``--match-labels`` the shards of NEW are first renamed to keep the most nodes
 in place (optimal assignment, see :mod:`partition.placement.relabel`).
 """
@@ -12,38 +16,43 @@ from __future__ import annotations
 
 import json
 
-import numpy as np
-
+from partition.commands.common import add_shared
 from partition.errors import InputError, ParameterError
-from partition.node_shards import read_node_shards
-from partition.placement.migration import align_placements, migration_plan, write_plan
-from partition.placement.relabel import relabel_to_match
 
 NAME = "diff"
-HELP = "compare two node→shard files: moves per shard pair, added and removed nodes"
+HELP = "compare two node→shard files: the node,from,to move list, moves per shard pair, added and removed nodes"
+EXAMPLE = "shardline diff docks-to-shards.csv docks-to-shards-v2.csv --match-labels -o moves.csv --pairs pairs.csv"
+_TABLE_EXTENSIONS = (".csv", ".tsv", ".parquet", ".pq")
 
 
 def add_arguments(parser):
     """Add the ``diff`` arguments to ``parser``."""
     parser.add_argument("old", metavar="OLD", help="current node→shard file (header node,shard; or Parquet)")
     parser.add_argument("new", metavar="NEW", help="next node→shard file")
-    parser.add_argument("-o", "--output", metavar="PLAN",
-                        help="write the per-pair table here (.csv, .tsv, .parquet)")
+    parser.add_argument("-o", "--output", metavar="MOVES",
+                        help="write the per-node move list here: node,from,to rows (.csv, .tsv, .parquet)")
+    parser.add_argument("--pairs", metavar="PLAN",
+                        help="write the per-pair table here: from_shard,to_shard,nodes,weight rows")
     parser.add_argument("--node-weights", metavar="FILE",
                         help="'id weight' rows (text, CSV or Parquet) for every node of OLD and NEW")
     parser.add_argument("--match-labels", action="store_true",
                         help="rename NEW's shards to keep the most nodes (or weight) in place before comparing")
     parser.add_argument("--rows", type=int, default=20, metavar="N",
                         help="table rows to print, largest moves first (default 20; the file has all)")
-    parser.add_argument("--json", action="store_true", help="print the plan as JSON")
+    add_shared(parser, "json", "quiet")
 
 
 def run(args) -> int:
     """Compare the two files, print the plan, and write it when ``-o`` is given."""
+    from partition.atomic import atomic_paths
+    from partition.node_shards import read_node_shards
+    from partition.placement.migration import migration_plan, node_moves, write_plan, write_table_file
+
     if args.rows < 0:
         raise ParameterError(f"--rows must be at least 0, got {args.rows}")
-    if args.output is not None and not args.output.lower().endswith((".csv", ".tsv", ".parquet", ".pq")):
-        raise ParameterError(f"{args.output}: the plan file must end in .csv, .tsv, .parquet or .pq")
+    for path in (args.output, args.pairs):
+        if path is not None and not path.lower().endswith(_TABLE_EXTENSIONS):
+            raise ParameterError(f"{path}: the plan file must end in .csv, .tsv, .parquet or .pq")
     old, new = read_node_shards(args.old), read_node_shards(args.new)
     old_ids, old_shards, new_ids, new_shards = old.ids, old.shards, new.ids, new.shards
     weights = None
@@ -61,20 +70,29 @@ def run(args) -> int:
         if weights is not None and "weight" in str(exc):
             raise InputError(args.node_weights, str(exc)) from None
         raise
-    if args.output is not None:
-        write_plan(args.output, plan)
+    moves = node_moves(old_ids, old_shards, new_ids, new_shards) if args.output is not None else None
+    with atomic_paths([args.output, args.pairs]) as tmp:
+        if tmp[0] is not None:
+            write_table_file(tmp[0], moves)
+        if tmp[1] is not None:
+            write_plan(tmp[1], plan)
     if args.json:
         out = plan.to_dict()
-        out.update({"old": str(args.old), "new": str(args.new), "output": args.output,
+        out.update({"old": str(args.old), "new": str(args.new), "output": args.output, "pairs": args.pairs,
                     "label_mapping": None if mapping is None else [int(x) for x in mapping]})
         print(json.dumps(out, indent=2, sort_keys=True))
-    else:
+    elif not args.quiet:
         _print(plan, args, mapping)
     return 0
 
 
 def _match(old_ids, old_shards, new_ids, new_shards, weights):
     """Rename NEW's shards by optimal assignment on the nodes both files hold."""
+    import numpy as np
+
+    from partition.placement.migration import align_placements
+    from partition.placement.relabel import relabel_to_match
+
     extra = None if weights is None else weights[0]
     _, old_of, new_of, w_codes = align_placements(old_ids, old_shards, new_ids, new_shards, extra)
     both = (old_of >= 0) & (new_of >= 0)
@@ -90,6 +108,7 @@ def _match(old_ids, old_shards, new_ids, new_shards, weights):
 
 
 def _print(plan, args, mapping):
+    import numpy as np
     from rich.console import Console
     from rich.table import Table
 
@@ -114,7 +133,9 @@ def _print(plan, args, mapping):
         shown = ", ".join(f"{j}→{int(m)}" for j, m in enumerate(mapping[:16]))
         rows.append(("new shard renamed", shown + (" …" if mapping.size > 16 else "")))
     if args.output is not None:
-        rows.append(("plan written to", str(args.output)))
+        rows.append(("node,from,to moves written to", str(args.output)))
+    if args.pairs is not None:
+        rows.append(("per-pair table written to", str(args.pairs)))
     for name, value in rows:
         summary.add_row(name, value)
     console.print(summary)

@@ -16,15 +16,18 @@ from __future__ import annotations
 
 import json
 
+from partition.commands.common import add_shared
 from partition.errors import ParameterError
-from partition.placement.export import FORMATS, export_run, verify_export
 
 NAME = "export"
 HELP = "write a run's placement as a folder: node→shard table, per-shard node lists, checksummed manifest"
+EXAMPLE = "shardline export docks-to-shards.csv -o placement/ --format csv"
 
 
 def add_arguments(parser):
     """Add the ``export`` arguments to ``parser``."""
+    from partition.placement.export import FORMATS
+
     parser.add_argument("source", metavar="RUN_OUTPUT",
                         help="node→shard file written by 'shardline run' (with --verify: an export folder)")
     parser.add_argument("-o", "--output", metavar="DIR", help="folder to create")
@@ -36,7 +39,7 @@ def add_arguments(parser):
     parser.add_argument("--force", action="store_true", help="replace DIR if it exists")
     parser.add_argument("--verify", action="store_true",
                         help="check the export folder RUN_OUTPUT against its manifest (and --graph)")
-    parser.add_argument("--json", action="store_true", help="print the manifest (or the check) as JSON")
+    add_shared(parser, "json", "quiet")
     parser.add_argument("--engine", choices=("memory", "spark"), default="memory",
                         help="memory (default): one file per table; spark: the tables are written by Spark as "
                              "dataset folders, for placements too large for one machine")
@@ -45,13 +48,15 @@ def add_arguments(parser):
 
 def run(args) -> int:
     """Export (or verify) and print a short summary."""
+    from partition.placement.export import export_run, verify_export
+
     if args.verify:
         if args.output is not None:
             raise ParameterError("--verify checks a folder; it takes no -o")
         result = verify_export(args.source, graph=args.graph)
         if args.json:
             print(json.dumps(result, indent=2, sort_keys=True))
-        else:
+        elif not args.quiet:
             _table(f"{args.source}: checks out", [
                 ("files checked", f"{result['files']:,}"),
                 ("input SHA-256", result["input_sha256"]),
@@ -84,6 +89,8 @@ def run(args) -> int:
                 progress.close()
     if args.json:
         print(json.dumps(manifest, indent=2, sort_keys=True))
+        return 0
+    if args.quiet:
         return 0
     metrics = manifest["metrics"]
     rows = [

@@ -7,8 +7,11 @@ grouped by arrival — the consecutive lines of one new node are its edges to
 nodes already placed (current nodes or earlier arrivals); a line
 ``new_node new_node`` announces an arrival without edges. Each arrival is
 placed in turn by the chosen rule (:mod:`partition.placement.online`) and
-``OUT`` gets the ``node,shard`` rows of the placed arrivals, in arrival order,
-written atomically. The capacity of a shard is the balance rule's cap for the
+``OUT`` gets the ``node,shard`` rows of the placed arrivals, in arrival order;
+``--merged FILE`` also writes the placement to deploy: every current node
+(in PLACEMENT's order) followed by the placed arrivals. A JSON report
+(``OUT.report.json`` unless ``--report``) holds the figures; all outputs are
+written atomically, together. The capacity of a shard is the balance rule's cap for the
 final node count (placed plus arriving, ``--imbalance``), or ``--capacity``.
 Arrivals that fit nowhere are left out of ``OUT``, counted, and listed in
 ``--rejected FILE`` if given.
@@ -21,42 +24,47 @@ import gzip
 import json
 import os
 
-import numpy as np
-import pyarrow as pa
-
+from partition.commands.common import add_shared
 from partition.errors import InputError, ParameterError, check_imbalance
-from partition.placement.online import LATER, RULES, UNKNOWN
 
 NAME = "place"
 HELP = "place arriving nodes on shards one at a time, never above capacity"
+EXAMPLE = ("shardline place docks-to-shards.csv new-docks.txt -o new-docks-to-shards.csv "
+           "--merged all-docks-to-shards.csv")
 
 
 def add_arguments(parser):
     """Add the ``place`` arguments to ``parser``."""
+    from partition.placement.online import RULES
+
     parser.add_argument("placement", metavar="PLACEMENT", help="current node→shard file (header node,shard; or Parquet)")
     parser.add_argument("arrivals", metavar="ARRIVALS",
                         help="edge list 'new_node neighbour' grouped by new node, in arrival order (text; .gz/.bz2)")
     parser.add_argument("-o", "--output", required=True, help="node→shard file of the arrivals (.csv, .tsv, .parquet)")
-    parser.add_argument("-k", "--shards", dest="k", type=int,
-                        help="number of shards (default: largest shard id in PLACEMENT + 1)")
+    parser.add_argument("--merged", metavar="FILE",
+                        help="also write the merged placement to deploy: PLACEMENT's rows, then the placed arrivals")
+    parser.add_argument("--report", help="JSON report path (default: OUTPUT.report.json)")
+    add_shared(parser, "shards_from_file")
     parser.add_argument("--rule", choices=RULES, default="discount",
                         help="discount: affinity × (1 − e^(fill−1)); ldg: affinity × (1 − fill); "
                              "greedy: affinity; hash: bounded-load consistent hashing (default discount)")
     parser.add_argument("--mix", type=float, default=0.0, metavar="MU",
                         help="weight in [0, 1] of the score against the forecast's projected fill (default 0)")
-    parser.add_argument("--imbalance", type=float, default=0.0,
-                        help="capacity = the balance rule's cap for the final node count with this ε (default 0)")
-    parser.add_argument("--capacity", type=int, help="capacity of every shard (instead of --imbalance)")
+    add_shared(parser, "imbalance")
+    parser.add_argument("--capacity", type=int,
+                        help="capacity of every shard (instead of the balance rule's cap for the final node count)")
     parser.add_argument("--weighted", action="store_true", help="the third field of an arrival line is the edge weight")
     parser.add_argument("--ignore-unplaced", action="store_true",
                         help="drop edges to nodes not placed yet (default: an error naming the line)")
-    parser.add_argument("--seed", type=int, default=0, help="hash seed of --rule hash (default 0)")
+    add_shared(parser, "seed")
     parser.add_argument("--rejected", metavar="FILE", help="also write the ids of rejected arrivals here")
-    parser.add_argument("--json", action="store_true", help="print the figures as JSON")
+    add_shared(parser, "json", "quiet")
 
 
 def _text_lines(path):
     """1-based line number of every data row of a text edge list (comments and blank lines skipped)."""
+    import numpy as np
+
     with open(path, "rb") as fh:
         raw = fh.read()
     if raw[:2] == b"\x1f\x8b":
@@ -83,8 +91,14 @@ def _text_lines(path):
 
 def run(args) -> int:
     """Place the arrivals and write their shards."""
+    import numpy as np
+    import pyarrow as pa
+
+    from partition import __version__
+    from partition.atomic import atomic_paths
     from partition.edgelist import read_edges
     from partition.node_shards import read_node_shards
+    from partition.placement.online import LATER, UNKNOWN
     from partition.placement.online import OnlinePlacer, final_capacity
     from partition.tables import write_table
 
@@ -140,22 +154,36 @@ def run(args) -> int:
     out = placer.place_many(arrivals, ptr, dst, weights=w, unplaced="ignore")
     ok = out >= 0
     node_type = pa.int64() if arrivals.dtype.kind in "iu" else pa.string()
-    write_table(args.output, pa.table({"node": pa.array(arrivals[ok], type=node_type),
-                                       "shard": pa.array(out[ok], type=pa.int64())}))
-    if args.rejected:
-        write_table(args.rejected, pa.table({"node": pa.array(arrivals[~ok], type=node_type)}))
+    report_path = args.report or f"{args.output}.report.json"
     loads = placer.loads
     figures = {
+        "tool": f"shardline {__version__}",
         "placement": str(args.placement), "arrivals_file": str(args.arrivals), "output": str(args.output),
+        "merged": args.merged, "report": str(report_path), "imbalance_allowed": eps if args.capacity is None else None,
+        "merged_nodes": int(ids.shape[0] + ok.sum()) if args.merged else None,
         "k": k, "rule": args.rule, "mix": args.mix, "capacity": int(placer.capacity.max()),
         "arrivals": int(arrivals.shape[0]), "placed": int(ok.sum()), "rejected": int((~ok).sum()),
         "dropped_edges": int(bad.size), "no_edge_arrivals": int(np.sum(np.diff(ptr) == 0)),
         "max_load_before": int(loads_before.max()), "max_load": int(loads.max()),
         "max_load_over_capacity": float(loads.max() / max(int(placer.capacity.max()), 1)),
         "per_shard_new": [int(x) for x in np.bincount(out[ok], minlength=k)],
+        "per_shard_after": [int(x) for x in loads],
     }
+    with atomic_paths([args.output, report_path, args.rejected, args.merged]) as tmp:
+        write_table(tmp[0], pa.table({"node": pa.array(arrivals[ok], type=node_type),
+                                      "shard": pa.array(out[ok], type=pa.int64())}))
+        with open(tmp[1], "w", encoding="utf-8") as fh:
+            fh.write(json.dumps(figures, indent=2, sort_keys=True) + "\n")
+        if tmp[2] is not None:
+            write_table(tmp[2], pa.table({"node": pa.array(arrivals[~ok], type=node_type)}))
+        if tmp[3] is not None:
+            write_table(tmp[3], pa.table({
+                "node": pa.concat_arrays([pa.array(ids, type=node_type), pa.array(arrivals[ok], type=node_type)]),
+                "shard": pa.array(np.concatenate((shards, out[ok])), type=pa.int64())}))
     if args.json:
         print(json.dumps(figures, indent=2, sort_keys=True))
+        return 0
+    if args.quiet:
         return 0
     from rich.console import Console
     from rich.table import Table
@@ -168,7 +196,7 @@ def run(args) -> int:
         ("capacity per shard", f"{figures['capacity']:,}"),
         ("largest load: before → after", f"{figures['max_load_before']:,} → {figures['max_load']:,}"),
         ("edges to unplaced nodes dropped", f"{figures['dropped_edges']:,}"),
-        ("written", str(args.output)),
+        ("written", str(args.output) + (f" and the merged placement {args.merged}" if args.merged else "")),
     ]:
         table.add_row(a, b)
     Console().print(table)

@@ -16,32 +16,30 @@ from __future__ import annotations
 import json
 
 from partition import __version__
-from partition.commands.common import add_graph_arguments, graph_from_args
+from partition.commands.common import add_graph_arguments, add_shared, graph_from_args
 from partition.errors import check_imbalance, check_parts
 
 NAME = "recut"
 HELP = "cut a run's stored linear order into a new number of shards, moving few nodes"
+EXAMPLE = ("shardline recut order.csv rides.csv.gz --weight-column rides -k 9 --previous docks-to-shards.csv "
+           "-o docks-to-9-shards.csv")
 
 
 def add_arguments(parser):
     """Add the ``recut`` arguments to ``parser``."""
     parser.add_argument("order", metavar="ORDER_FILE", help="node,position file from 'shardline run --order-output'")
     add_graph_arguments(parser)
-    parser.add_argument("-k", "--shards", dest="k", type=int, required=True, help="new number of shards")
-    parser.add_argument("--imbalance", type=float, default=0.0,
-                        help="allowed imbalance ε: a shard may weigh up to ⌈(1+ε)W/k⌉ + w_max − 1 (default 0)")
+    add_shared(parser, "shards", "imbalance")
     parser.add_argument("--previous", metavar="OLD",
-                        help="current node→shard file: rename shards to it and weigh moves (shard ids may be ≥ K2)")
-    parser.add_argument("--move-cost", type=float, default=1.0,
-                        help="with --previous: edge weight a moved unit of node weight costs (default 1.0)")
-    parser.add_argument("--seed", type=int, default=0, help="orders the refinement rounds (default 0)")
+                        help="current node→shard file: rename shards to it and weigh moves (shard ids may be ≥ K)")
+    add_shared(parser, "move_cost", "seed")
     parser.add_argument("--floor", choices=("band", "rule"), default="band",
                         help="band: keep every shard at least ⌊(1−ε)W/k⌋ − w_max + 1 so new shards fill up; "
                              "rule: bound only the largest shard, as the balance rule does (default band)")
     parser.add_argument("--no-refine", action="store_true", help="plain line cut (and renaming) only")
     parser.add_argument("-o", "--output", required=True, help="node→shard file to write (.csv, .tsv, .parquet)")
     parser.add_argument("--report", help="JSON report path (default: OUTPUT.report.json)")
-    parser.add_argument("--json", action="store_true", help="print the report as JSON")
+    add_shared(parser, "json", "quiet")
     parser.add_argument("--engine", choices=("memory", "spark"), default="memory",
                         help="memory (default) or spark: the edges stay in Spark, the output is a Parquet folder "
                              "(CSV parts for a .csv name); --previous needs memory for now")
@@ -53,7 +51,7 @@ def run(args) -> int:
     from partition.assignment import read_assignment, write_assignment
     from partition.atomic import write_text
     from partition.placement.recut import read_order, recut
-    from partition.placement.stable import check_move_cost
+    from partition.errors import check_move_cost
     from partition.score import score
 
     eps = check_imbalance(args.imbalance)
@@ -88,6 +86,8 @@ def run(args) -> int:
     write_text(report_path, json.dumps(report, indent=2, sort_keys=True) + "\n")
     if args.json:
         print(json.dumps(report, indent=2, sort_keys=True))
+        return 0
+    if args.quiet:
         return 0
     from rich.console import Console
     from rich.table import Table
@@ -161,6 +161,8 @@ def _run_spark(args, k, eps, report_path):
     spark.stop()
     if args.json:
         print(json.dumps(report, indent=2, sort_keys=True))
+        return 0
+    if args.quiet:
         return 0
     total = max(figures["total_edge_weight"], 1e-300)
     print(f"{args.order} → {k} shards (Spark engine): cut fraction line {stats['cut_line'] / total:.4f} → window "

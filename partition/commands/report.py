@@ -18,10 +18,12 @@ from __future__ import annotations
 import json
 import os
 
-from partition.commands.common import add_graph_arguments
+from partition.commands.common import add_graph_arguments, add_shared
 from partition.errors import InputError, ParameterError
 
 NAME = "report"
+EXAMPLE = ("shardline report docks-to-shards.csv --weight-column rides --run-baselines hash,ldg -o report.html\n"
+           "  (the graph is the one the run's report names; its checksum must match)")
 HELP = "draw a run's figures into one self-contained HTML page (loads, cut matrix, adjacency, stages, baselines)"
 
 
@@ -45,8 +47,7 @@ def add_arguments(parser):
     parser.add_argument("--png-dir", metavar="DIR", help="also write every figure as DIR/<name>.png")
     parser.add_argument("--dpi", type=int, default=100, help="resolution of the figures (default 100)")
     add_graph_arguments(parser, positional=False)
-    if "--quiet" not in parser._option_string_actions:  # the same flag as every other command's
-        parser.add_argument("--quiet", action="store_true", help="no progress lines on standard error")
+    add_shared(parser, "json", "quiet")
 
 
 def _read_json(path, what):
@@ -160,8 +161,12 @@ def run(args) -> int:
     finally:
         if progress:
             progress.close()
-    print(f"wrote {args.output}: {size:,} bytes, {len(rep.figures)} figures"
-          + (f" (and {len(rep.figures)} PNG files in {args.png_dir})" if args.png_dir else ""))
+    if args.json:
+        print(json.dumps({"output": args.output, "bytes": size, "figures": len(rep.figures),
+                          "png_dir": args.png_dir, "notes": list(rep.notes)}, indent=2, sort_keys=True))
+    elif not args.quiet:
+        print(f"wrote {args.output}: {size:,} bytes, {len(rep.figures)} figures"
+              + (f" (and {len(rep.figures)} PNG files in {args.png_dir})" if args.png_dir else ""))
     return 0
 
 

@@ -1,13 +1,24 @@
 """``shardline ring``: place loose keys on shards by bounded-load consistent hashing.
 
-``shardline ring assign KEYS --shards N -o OUT`` reads keys (one per line, or a
-column of a CSV/TSV file with ``--column``), places them on shards ``0..N−1``
-with at most ``⌈(1+ε)·m/N⌉`` keys each, and writes ``key,shard`` rows
-atomically. ``shardline ring moves KEYS --shards N --add`` (or ``--remove S``)
-tells how many keys change shard when one shard joins or leaves, next to plain
-consistent hashing and ``hash mod N`` for the same change, and can write the
-moved keys (``key,from,to``). Keys are hashed as text (their UTF-8 bytes)
-unless ``--integer-keys`` is given.
+``shardline ring assign KEYS -k K -o OUT`` reads keys (one per line, or a
+column of a CSV/TSV file with ``--column``), places them on shards ``0..K−1``
+with at most ``⌈(1+ε)·m/K⌉`` keys each, and writes ``node,shard`` rows
+atomically (a key is a node without edges; the columns are those of every
+other node→shard file). ``shardline ring moves KEYS -k K --add`` (or
+``--remove S``) tells how many keys change shard when one shard joins or
+leaves, next to plain consistent hashing and ``hash mod K`` for the same
+change, and can write the moved keys (``node,from,to``, as ``shardline diff``
+writes). Keys are hashed as text (their UTF-8 bytes) unless ``--integer-keys``
+is given.
+
+Defaults: ε = 0 as in every command (``--imbalance inf`` is plain consistent
+hashing) and :data:`DEFAULT_POINTS` ring points per shard. With 10,000 keys on
+8 shards at ε = 0.25, one point per shard left the smallest shard 372 keys
+against a largest of 1,563; 1,000 points gave 1,177 against 1,284, and 1,115
+keys moved when a 9th shard joined (ideal m/9 ≈ 1,111;
+``jobs/bench_ring_points.py`` prints the table). When the smallest shard
+holds fewer than ``⌊(1 − min(ε, ½))·m/K⌋`` keys a warning goes to standard
+error.
 """
 
 from __future__ import annotations
@@ -16,56 +27,60 @@ import csv
 import gzip
 import io
 import json
+import math
+import sys
 import time
 
-import numpy as np
-
-from partition.atomic import atomic_path
-from partition.errors import InputError, ParameterError
-from partition.placement.bounded_hash import (
-    BoundedLoadRing, capacity, consistent_assign, mod_assign,
-)
+from partition.commands.common import add_shared
+from partition.errors import InputError, ParameterError, check_parts
 
 NAME = "ring"
 HELP = "place keys outside the graph on shards by consistent hashing with bounded loads"
+EXAMPLE = "shardline ring assign session-ids.txt -k 8 -o sessions-to-shards.csv"
+EXAMPLES = {
+    "assign": "shardline ring assign session-ids.txt -k 8 -o sessions-to-shards.csv",
+    "moves": "shardline ring moves session-ids.txt -k 8 --add -o moved-sessions.csv",
+}
+
+DEFAULT_POINTS = 1000
+"""Ring points per shard: the most even split of the table in ``jobs/bench_ring_points.py`` at a small cost."""
 
 
 def add_arguments(parser):
     """Add the ``assign`` and ``moves`` actions to ``parser``."""
+    from partition.cli import command_parser
+
     actions = parser.add_subparsers(dest="ring_action", metavar="ACTION")
     actions.required = True
-    assign = actions.add_parser("assign", help="write the shard of every key",
-                                description="Place every key on a shard and write key,shard rows.")
-    moves = actions.add_parser("moves", help="count the keys that move when a shard joins or leaves",
-                               description="Count (and optionally write) the keys whose shard changes "
-                               "when one shard is added or removed, beside plain consistent hashing "
-                               "and hash-mod-N for the same change.")
+    assign = command_parser(actions, None, "assign", "place every key on a shard and write node,shard rows",
+                            EXAMPLES["assign"])
+    moves = command_parser(actions, None, "moves",
+                           "count (and optionally write) the keys whose shard changes when one shard is added "
+                           "or removed, beside plain consistent hashing and hash-mod-K for the same change",
+                           EXAMPLES["moves"])
     for p in (assign, moves):
         p.add_argument("keys", metavar="KEYS", help="keys, one per line, or a CSV/TSV file with --column; .gz allowed")
-        p.add_argument("--shards", type=int, required=True, metavar="N", help="number of shards (named 0..N-1)")
-        p.add_argument("--imbalance", type=float, default=0.25, metavar="EPS",
-                       help="each shard holds at most ceil((1+EPS)*m/N) keys; 'inf' for no bound (default 0.25)")
-        p.add_argument("--points", type=int, default=1, metavar="P",
-                       help="ring points per shard (default 1, the case the load bound is proved for)")
-        p.add_argument("--seed", type=int, default=0, help="hash seed (default 0)")
+        add_shared(p, "shards", "imbalance", "seed")
+        p.add_argument("--points", type=int, default=DEFAULT_POINTS, metavar="P",
+                       help=f"ring points per shard (default {DEFAULT_POINTS}: an even split; 1 is the case the "
+                            "bounded-load analysis is written for); --imbalance inf: plain consistent hashing")
         p.add_argument("--column", help="read keys from this column of a CSV/TSV file with a header")
         p.add_argument("--delimiter", help="CSV delimiter (default: tab for .tsv, else comma)")
         p.add_argument("--integer-keys", action="store_true",
                        help="keys are 64-bit integers, hashed as numbers rather than as text")
-        p.add_argument("--json", action="store_true", help="print the figures as JSON")
-    assign.add_argument("-o", "--output", required=True, help="CSV file of key,shard rows to write")
+        add_shared(p, "json", "quiet")
+    assign.add_argument("-o", "--output", required=True, help="CSV file of node,shard rows to write")
     change = moves.add_mutually_exclusive_group(required=True)
-    change.add_argument("--add", action="store_true", help="add shard N")
+    change.add_argument("--add", action="store_true", help="add shard K")
     change.add_argument("--remove", type=int, metavar="S", help="remove shard S")
-    moves.add_argument("-o", "--output", help="CSV file of key,from,to rows for the moved keys")
+    moves.add_argument("-o", "--output", help="CSV file of node,from,to rows for the moved keys")
 
 
 def run(args) -> int:
     """Carry out ``ring assign`` or ``ring moves``; returns the exit status."""
-    if args.shards < 1:
-        raise ParameterError(f"--shards must be at least 1, got {args.shards}")
+    args.shards = check_parts(args.k)
     if args.imbalance != args.imbalance or args.imbalance < 0:
-        raise ParameterError(f"--imbalance must be >= 0 (or inf), got {args.imbalance}")
+        raise ParameterError(f"imbalance must be a number >= 0 (or inf for no bound), got {args.imbalance}")
     if args.points < 1:
         raise ParameterError(f"--points must be at least 1, got {args.points}")
     if not 0 <= args.seed < 2**64:
@@ -106,6 +121,8 @@ def read_keys(path, column=None, delimiter=None, integer=False):
     InputError
         Naming the file and line of the first bad, blank or repeated key.
     """
+    import numpy as np
+
     try:
         opener = gzip.open if str(path).endswith(".gz") else open
         with opener(path, "rb") as fh:
@@ -151,6 +168,8 @@ def read_keys(path, column=None, delimiter=None, integer=False):
 
 
 def _column(path, text, column, delimiter):
+    import numpy as np
+
     if delimiter is None:
         delimiter = "\t" if str(path).removesuffix(".gz").endswith(".tsv") else ","
     reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
@@ -172,6 +191,8 @@ def _column(path, text, column, delimiter):
 
 
 def _write_rows(path, header, columns):
+    from partition.atomic import atomic_path
+
     with atomic_path(path) as tmp:
         with open(tmp, "w", encoding="utf-8", newline="") as fh:
             w = csv.writer(fh, lineterminator="\n")
@@ -179,20 +200,41 @@ def _write_rows(path, header, columns):
             w.writerows(zip(*[c.tolist() for c in columns]))
 
 
+def uneven_floor(m, k, eps):
+    """Fewest keys a shard may hold before the split counts as uneven: ``⌊(1 − min(ε, ½))·m/k⌋``."""
+    e = 0.5 if not math.isfinite(eps) else min(float(eps), 0.5)
+    return math.floor((1.0 - e) * m / k)
+
+
+def _warn_uneven(loads, m, k, eps, points):
+    floor = uneven_floor(m, k, eps)
+    if int(loads.min()) < floor:
+        print(f"shardline: warning: uneven split: the smallest shard holds {int(loads.min()):,} keys, the largest "
+              f"{int(loads.max()):,} (mean {m / k:,.1f}; below {floor:,} counts as uneven); more ring points per "
+              f"shard (--points, now {points}) or a smaller --imbalance even it out", file=sys.stderr)
+
+
 def _assign(args, keys):
+    import numpy as np
+
+    from partition.placement.bounded_hash import BoundedLoadRing
+
     started = time.perf_counter()
     ring = BoundedLoadRing(np.arange(args.shards), args.imbalance, seed=args.seed,
                            points_per_shard=args.points, keys=keys)
     k, s = ring.assignment()
     seconds = time.perf_counter() - started
-    _write_rows(args.output, ("key", "shard"), (k, s))
+    _write_rows(args.output, ("node", "shard"), (k, s))
     loads = np.array(list(ring.loads().values()))
-    fig = {"keys": int(k.size), "shards": args.shards, "allowed_imbalance": args.imbalance,
+    _warn_uneven(loads, k.size, args.shards, args.imbalance, args.points)
+    fig = {"keys": int(k.size), "shards": args.shards, "imbalance_allowed": args.imbalance,
            "capacity": ring.capacity, "max_load": int(loads.max()), "min_load": int(loads.min()),
            "mean_load": k.size / args.shards, "points_per_shard": args.points, "seed": args.seed,
            "seconds": round(seconds, 4), "output": str(args.output)}
     if args.json:
         print(json.dumps(fig, indent=2, sort_keys=True))
+        return 0
+    if args.quiet:
         return 0
     rows = [("keys", f"{fig['keys']:,}"), ("shards", str(fig["shards"])),
             ("capacity ⌈(1+ε)m/n⌉", f"{fig['capacity']:,} (ε = {args.imbalance:g})"),
@@ -204,6 +246,10 @@ def _assign(args, keys):
 
 
 def _moves(args, keys):
+    import numpy as np
+
+    from partition.placement.bounded_hash import BoundedLoadRing, capacity, consistent_assign, mod_assign
+
     shards = np.arange(args.shards)
     ring = BoundedLoadRing(shards, args.imbalance, seed=args.seed, points_per_shard=args.points, keys=keys)
     if args.add:
@@ -217,15 +263,17 @@ def _moves(args, keys):
                  != consistent_assign(keys, after, args.seed, args.points)).sum())
     modk = int((mod_assign(keys, shards, args.seed) != mod_assign(keys, after, args.seed)).sum())
     if args.output:
-        _write_rows(args.output, ("key", "from", "to"), (moved.keys, moved.before, moved.after))
+        _write_rows(args.output, ("node", "from", "to"), (moved.keys, moved.before, moved.after))
     methods = {"bounded": len(moved), "consistent": plain, "mod": modk}
     fig = {"change": change, "keys": int(m), "shards_before": args.shards, "shards_after": int(after.size),
-           "allowed_imbalance": args.imbalance, "points_per_shard": args.points, "seed": args.seed,
+           "imbalance_allowed": args.imbalance, "points_per_shard": args.points, "seed": args.seed,
            "capacity_before": capacity(m, args.shards, args.imbalance),
            "capacity_after": capacity(m, after.size, args.imbalance),
            "moved": methods, "output": args.output}
     if args.json:
         print(json.dumps(fig, indent=2, sort_keys=True))
+        return 0
+    if args.quiet:
         return 0
     labels = {"bounded": f"bounded loads (ε = {args.imbalance:g})", "consistent": "plain consistent hashing",
               "mod": f"hash mod n ({args.shards} → {after.size})"}

@@ -7,22 +7,21 @@ import sys
 import time
 
 from partition import __version__
-from partition.affinity import DEFAULT_HUB_CAP, METHODS as AFFINITIES
-from partition.commands.common import add_graph_arguments, graph_from_args
+from partition.commands.common import add_graph_arguments, add_shared, graph_from_args
 from partition.errors import ParameterError, check_imbalance, check_parts
-from partition.progress import Progress as _Progress  # the shared reporter (bar on a terminal, lines otherwise)
-from partition.rules import LINKAGES
 
 NAME = "run"
 HELP = "partition a graph into k balanced shards with few cut edges (the main job)"
+EXAMPLE = ("shardline run rides.csv.gz --weight-column rides -k 8 --imbalance 0.03 --seed 1 -o docks-to-shards.csv\n"
+           "  (writes docks-to-shards.csv, node,shard rows, and docks-to-shards.csv.report.json)")
 
 
 def add_arguments(parser):
+    from partition.affinity import DEFAULT_HUB_CAP, METHODS as AFFINITIES
+    from partition.rules import LINKAGES
+
     add_graph_arguments(parser)
-    parser.add_argument("-k", "--shards", dest="k", type=int, required=True, help="number of shards")
-    parser.add_argument("--imbalance", type=float, default=0.0,
-                        help="allowed imbalance ε: a shard may weigh up to ⌈(1+ε)W/k⌉ + w_max − 1 (default 0)")
-    parser.add_argument("--seed", type=int, default=0, help="seed of every tie-break and random choice (default 0)")
+    add_shared(parser, "shards", "imbalance", "seed")
     parser.add_argument("-o", "--output", required=True,
                         help="node→shard file to write (.csv, .tsv, .parquet; .gz for text)")
     parser.add_argument("--report", help="JSON report path (default: OUTPUT.report.json)")
@@ -31,9 +30,7 @@ def add_arguments(parser):
     parser.add_argument("--previous", metavar="OLD",
                         help="current node→shard file: rename the new shards to keep the most nodes in place "
                              "(shard ids ≥ K are drained)")
-    parser.add_argument("--move-cost", type=float, default=0.0,
-                        help="with --previous: cut weight one moved unit of node weight is worth; > 0 trades cut "
-                             "for fewer moves (default 0: rename only)")
+    add_shared(parser, "move_cost")
     algo = parser.add_argument_group("method")
     algo.add_argument("--affinity", choices=AFFINITIES, default="jaccard",
                       help="edge affinity for the hierarchy (default jaccard)")
@@ -53,8 +50,7 @@ def add_arguments(parser):
                             "driver after a distributed read)")
     spark.add_argument("--work-dir", help="Spark engine: checkpoint folder (needed for --resume)")
     spark.add_argument("--resume", action="store_true", help="Spark engine: continue an interrupted run")
-    parser.add_argument("--json", action="store_true", help="print the report as JSON on standard output")
-    parser.add_argument("--quiet", action="store_true", help="no progress lines on standard error")
+    add_shared(parser, "json", "quiet")
 
 
 def run(args) -> int:
@@ -64,7 +60,7 @@ def run(args) -> int:
     from partition.placement.export import file_sha256
     from partition.tables import hierarchy_table, order_table, write_table
 
-    from partition.placement.stable import check_move_cost
+    from partition.errors import check_move_cost
 
     check_imbalance(args.imbalance)
     check_move_cost(args.move_cost)
@@ -72,12 +68,14 @@ def run(args) -> int:
     if args.hub_cap < 1:
         raise ParameterError(f"--hub-cap must be at least 1, got {args.hub_cap}")
     report_path = args.report or f"{args.output}.report.json"
-    progress = None if args.quiet else _Progress()
+    from partition.progress import progress_for
+
+    progress = progress_for(args.quiet)
     engine = args.engine
     if engine == "auto":
-        from partition.spark.engine import fits_driver
-
         import os
+
+        from partition.sizing import fits_driver
 
         # a missing local file goes to the in-memory reader, which names it in its error
         engine = "memory" if not os.path.exists(args.graph) or fits_driver(args.graph) else "spark"
@@ -137,7 +135,7 @@ def run(args) -> int:
         progress.line(f"scored and wrote {args.output} in {time.perf_counter() - t_out:.2f} s")
     if args.json:
         print(json.dumps(report, indent=2, sort_keys=True))
-    else:
+    elif not args.quiet:
         _summary(report)
     return 0
 
@@ -162,7 +160,7 @@ def _run_spark(args, k, report_path, progress):
             progress.close()
     if args.json:
         print(json.dumps(rep, indent=2, sort_keys=True, default=str))
-    else:
+    elif not args.quiet:
         _spark_summary(rep, args.graph)
     return 0
 

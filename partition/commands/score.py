@@ -14,13 +14,12 @@ from __future__ import annotations
 
 import json
 
-from partition.assignment import read_assignment
-from partition.commands.common import add_graph_arguments, graph_from_args
+from partition.commands.common import add_graph_arguments, add_shared, graph_from_args
 from partition.errors import check_imbalance, check_parts
-from partition.score import score
 
 NAME = "score"
 HELP = "validate a node→shard file against the graph and report cut, balance, volume and fanout"
+EXAMPLE = "shardline score rides.csv.gz --weight-column rides docks-to-shards.csv --imbalance 0.03"
 
 TABLE_MAX_K = 16
 """Largest k for which the per-shard table and the cut matrix are printed."""
@@ -30,14 +29,13 @@ def add_arguments(parser):
     add_graph_arguments(parser)
     parser.add_argument("assignment", metavar="ASSIGNMENT",
                         help="node→shard file: node,shard rows (CSV/TSV/whitespace, .gz) or Parquet")
-    parser.add_argument("-k", "--shards", dest="k", type=int, default=None,
-                        help="number of shards (default: largest shard id + 1)")
-    parser.add_argument("--imbalance", metavar="EPS", type=float, default=None,
-                        help="also check the balance rule for this allowed imbalance ε")
-    parser.add_argument("--json", action="store_true", help="print the figures as JSON")
+    add_shared(parser, "shards_from_file", "imbalance_check", "json", "quiet")
 
 
 def run(args) -> int:
+    from partition.assignment import read_assignment
+    from partition.score import score
+
     eps = None if args.imbalance is None else check_imbalance(args.imbalance)
     k = None if args.k is None else check_parts(args.k)
     graph = graph_from_args(args)
@@ -48,7 +46,7 @@ def run(args) -> int:
         figures = result.to_dict()
         figures.update({"graph": str(args.graph), "assignment": str(args.assignment), "published": published})
         print(json.dumps(figures, indent=2, sort_keys=True))
-    else:
+    elif not args.quiet:  # with --quiet only the exit status and any error tell
         _print_tables(result, args)
         _print_published(published, result)
     return 0

@@ -13,10 +13,19 @@ import json
 import sys
 import time
 
+from partition.commands.common import add_shared
 from partition.errors import ParameterError
 
 NAME = "workload"
 HELP = "request logs: co-access graphs, workload partitions, routing tables and held-out replay"
+EXAMPLE = "shardline workload replay baskets.dat.gz -k 8 --train-fraction 0.7 -o replay.json"
+EXAMPLES = {
+    "coaccess": "shardline workload coaccess baskets.dat.gz -o coaccess.csv --node-weights-output loads.csv",
+    "partition": "shardline workload partition baskets.dat.gz -k 8 --imbalance 0.03 -o keys-to-shards.csv",
+    "route": "shardline workload route baskets.dat.gz --table keys-to-shards.csv -k 8 -o requests-to-shards.csv",
+    "replay": EXAMPLE,
+    "synth": "shardline workload synth -o reading-sessions.dat.gz --planted-output planted.csv",
+}
 
 
 def _log_arguments(p, split=True):
@@ -50,9 +59,7 @@ def _build_arguments(p):
 
 
 def _partition_arguments(p):
-    p.add_argument("-k", "--shards", dest="k", type=int, required=True, help="number of shards (replicas)")
-    p.add_argument("--imbalance", type=float, default=0.03, help="allowed load imbalance ε (default 0.03)")
-    p.add_argument("--seed", type=int, default=0, help="seed of every tie-break and random choice (default 0)")
+    add_shared(p, "shards", "imbalance_load", "seed")
     g = p.add_argument_group("method")
     g.add_argument("--starts", default="hierarchy", help="partitioner starts (default hierarchy; see shardline run)")
     g.add_argument("--refine", default="default", help="partitioner refinement steps (default: its default plan)")
@@ -61,11 +68,19 @@ def _partition_arguments(p):
     _build_arguments(p)
 
 
+def _action(acts, name, help, description):
+    from partition.cli import command_parser
+
+    p = command_parser(acts, None, name, help, EXAMPLES[name])
+    p.description = description
+    return p
+
+
 def add_arguments(parser):
     """Add the ``coaccess``, ``partition``, ``route``, ``replay`` and ``synth`` actions."""
     acts = parser.add_subparsers(dest="workload_action", metavar="ACTION")
     acts.required = True
-    co = acts.add_parser("coaccess", help="write the co-access graph: edge list + node-weights file",
+    co = _action(acts, "coaccess", help="write the co-access graph: edge list + node-weights file",
                          description="Keys become nodes weighted by their access count; two keys of a request of "
                          "s keys are joined with weight 1/(s-1) (in integer units of 1/720720).")
     _log_arguments(co)
@@ -75,31 +90,30 @@ def add_arguments(parser):
     co.add_argument("--engine", choices=["memory", "spark"], default="memory",
                     help="memory (default) or spark (a Spark job for large logs; basket text or Parquet)")
     co.add_argument("--master", help="Spark master URL (default local[2])")
-    co.add_argument("--seed", type=int, default=0, help="seed of the sampling of large requests (default 0)")
-    co.add_argument("--json", action="store_true", help="print the build report as JSON")
+    add_shared(co, "seed", "json", "quiet")
     _build_arguments(co)
 
-    pa_ = acts.add_parser("partition", help="a key → shard table for the workload (balanced on load)",
+    pa_ = _action(acts, "partition", help="a key → shard table for the workload (balanced on load)",
                           description="Build the co-access graph of the (training part of the) log, partition it "
                           "with node weights = load, refine on the requests' fan-out, write key,shard rows.")
     _log_arguments(pa_)
     _partition_arguments(pa_)
     pa_.add_argument("-o", "--output", required=True, help="key→shard file (.csv, .tsv, .parquet; .gz for text)")
     pa_.add_argument("--report", help="JSON report path (default: OUTPUT.report.json)")
-    pa_.add_argument("--json", action="store_true", help="print the report as JSON")
-    pa_.add_argument("--quiet", action="store_true", help="no progress lines")
+    add_shared(pa_, "json", "quiet")
 
-    ro = acts.add_parser("route", help="the replica that serves each request (request,shard rows)",
+    ro = _action(acts, "route", help="the replica that serves each request (request,shard rows)",
                          description="Route every request of the log (or of its held-out part) by a policy.")
     _log_arguments(ro)
     ro.add_argument("--table", help="key→shard file (needed by the partition policy)")
-    ro.add_argument("-k", "--shards", dest="k", type=int, required=True, help="number of replicas")
+    add_shared(ro, "shards")
     ro.add_argument("--policy", default="partition", choices=["random", "request-hash", "key-hash", "partition"],
                     help="routing policy (default partition: the shard holding most of the request's keys)")
-    ro.add_argument("--seed", type=int, default=0, help="seed (default 0)")
+    add_shared(ro, "seed")
     ro.add_argument("-o", "--output", required=True, help="request→shard file to write")
+    add_shared(ro, "json", "quiet")
 
-    re_ = acts.add_parser("replay", help="held-out replay: fan-out, load and LRU hit rates per policy",
+    re_ = _action(acts, "replay", help="held-out replay: fan-out, load and LRU hit rates per policy",
                           description="Build a key table on the first part of the log (or read --table), replay "
                           "the rest: fan-out and load for sharded data, per-replica LRU hit rates for replicated "
                           "data, and the keys never seen in the training part.")
@@ -110,10 +124,9 @@ def add_arguments(parser):
                      help="cache sizes per replica as fractions of the distinct keys (default 0.005,0.01,0.02,0.05)")
     re_.add_argument("--table-output", help="also write the key→shard table (built plus online-placed keys)")
     re_.add_argument("-o", "--output", help="JSON report to write")
-    re_.add_argument("--json", action="store_true", help="print the report as JSON")
-    re_.add_argument("--quiet", action="store_true", help="no progress lines")
+    add_shared(re_, "json", "quiet")
 
-    sy = acts.add_parser("synth", help="write a seeded synthetic log (an invented library's reading sessions)",
+    sy = _action(acts, "synth", help="write a seeded synthetic log (an invented library's reading sessions)",
                          description="Topics with Zipf popularity, slow drift and one burst; also writes the "
                          "planted key→shard table, the known best routing.")
     sy.add_argument("-o", "--output", required=True, help="log to write (basket text, .gz, or .jsonl)")
@@ -121,9 +134,9 @@ def add_arguments(parser):
     sy.add_argument("--requests", type=int, default=20000, help="number of requests (default 20000)")
     sy.add_argument("--keys", type=int, default=5000, help="number of keys (default 5000)")
     sy.add_argument("--topics", type=int, default=40, help="number of topics (default 40)")
-    sy.add_argument("-k", "--shards", dest="k", type=int, default=8, help="shards of the planted table (default 8)")
+    add_shared(sy, "shards_planted")
     sy.add_argument("--mean-size", type=float, default=6.0, help="mean request size (default 6)")
-    sy.add_argument("--seed", type=int, default=0, help="seed (default 0)")
+    add_shared(sy, "seed", "json", "quiet")
 
 
 def run(args) -> int:
@@ -198,7 +211,7 @@ def _coaccess(args):
     report["outputs"] = {"edges": args.output, "node_weights": args.node_weights_output}
     if args.json:
         print(json.dumps(report, indent=2, sort_keys=True))
-    else:
+    elif not args.quiet:
         _table("co-access graph of " + str(args.log), [
             ("requests / keys", f"{report['requests']:,} / {report['keys']:,}"),
             ("edges", f"{report['edges']:,}"),
@@ -240,7 +253,7 @@ def _partition(args):
             fh.write(json.dumps(report, indent=2, sort_keys=True, default=str) + "\n")
     if args.json:
         print(json.dumps(report, indent=2, sort_keys=True, default=str))
-    else:
+    elif not args.quiet:
         nets = report["nets"]
         _table(f"{args.log} → {args.k} shards (workload)", [
             ("requests / keys (training)", f"{train.n_requests:,} / {report['coaccess']['keys']:,}"),
@@ -267,7 +280,11 @@ def _route(args):
             raise ParameterError("the partition policy needs --table KEYS_TO_SHARDS")
         table, _ = place_unseen(part, read_key_table(args.table, log, args.k), args.k, args.seed)
     write_routes(args.output, route(part, args.policy, args.k, table=table, seed=args.seed))
-    print(f"routed {part.n_requests:,} requests by {args.policy} → {args.output}")
+    if args.json:
+        print(json.dumps({"requests": part.n_requests, "policy": args.policy, "k": args.k, "output": args.output},
+                         indent=2, sort_keys=True))
+    elif not args.quiet:
+        print(f"routed {part.n_requests:,} requests by {args.policy} → {args.output}")
     return 0
 
 
@@ -311,7 +328,7 @@ def _replay(args):
             write_key_table(tmp[1], log.keys, place_unseen(test, table, args.k, args.seed)[0])
     if args.json:
         print(json.dumps(report, indent=2, sort_keys=True, default=str))
-    else:
+    elif not args.quiet:
         print_replay(report)
     return 0
 
@@ -357,8 +374,12 @@ def _synth(args):
         write_log(tmp[0], w.log)
         if tmp[1]:
             write_key_table(tmp[1], w.log.keys, w.planted)
-    print(f"wrote {w.log.n_requests:,} requests over {w.log.n_keys:,} keys to {args.output}"
-          + (f"; planted table {args.planted_output}" if args.planted_output else ""))
+    if args.json:
+        print(json.dumps({"requests": w.log.n_requests, "keys": w.log.n_keys, "output": args.output,
+                          "planted_output": args.planted_output}, indent=2, sort_keys=True))
+    elif not args.quiet:
+        print(f"wrote {w.log.n_requests:,} requests over {w.log.n_keys:,} keys to {args.output}"
+              + (f"; planted table {args.planted_output}" if args.planted_output else ""))
     return 0
 
 

@@ -27,7 +27,7 @@ from partition.atomic import atomic_path
 from partition.errors import ParameterError
 from partition.graph import dense_ids
 
-__all__ = ["MigrationPlan", "align_placements", "migration_plan", "write_plan"]
+__all__ = ["MigrationPlan", "align_placements", "migration_plan", "node_moves", "write_plan", "write_table_file"]
 
 PLAN_COLUMNS = ("from_shard", "to_shard", "nodes", "weight")
 
@@ -197,6 +197,39 @@ def migration_plan(old_ids, old_shards, new_ids, new_shards, weights=None):
     return MigrationPlan(moves=moves, totals=totals)
 
 
+def node_moves(old_ids, old_shards, new_ids, new_shards):
+    """The per-node move list that drives a migration: ``node,from,to``.
+
+    Parameters
+    ----------
+    old_ids, old_shards, new_ids, new_shards : array_like
+        The two placements, as for :func:`migration_plan`.
+
+    Returns
+    -------
+    pyarrow.Table
+        Columns ``node`` (int64 when both placements have integer ids, else
+        string), ``from`` and ``to`` (int64): one row per node whose shard
+        changes, sorted by node; an added node has a null ``from``, a removed
+        one a null ``to``. Nodes that stay put are not listed.
+
+    Raises
+    ------
+    ParameterError
+        As for :func:`align_placements`.
+    """
+    ids, old_of, new_of, _ = align_placements(old_ids, old_shards, new_ids, new_shards)
+    rows = np.flatnonzero(old_of != new_of)  # moved, added (old −1) or removed (new −1)
+    node = ids[rows]
+    node_type = pa.int64() if node.dtype.kind in "iu" else pa.string()
+    src, dst = old_of[rows], new_of[rows]
+    return pa.table({
+        "node": pa.array(node, type=node_type),
+        "from": pa.array(src, type=pa.int64(), mask=src < 0),
+        "to": pa.array(dst, type=pa.int64(), mask=dst < 0),
+    })
+
+
 def write_plan(path, plan):
     """Write the per-pair table of a plan atomically: CSV, TSV or Parquet by extension.
 
@@ -212,18 +245,29 @@ def write_plan(path, plan):
     ParameterError
         The extension is none of the above.
     """
+    write_table_file(path, plan.moves)
+
+
+def write_table_file(path, table):
+    """Write a table atomically as CSV, TSV or Parquet by the path's extension (nulls: empty fields).
+
+    Raises
+    ------
+    ParameterError
+        The extension is not ``.csv``, ``.tsv``, ``.parquet`` or ``.pq``.
+    """
     name = os.fspath(path)
     lower = name.lower()
     if lower.endswith((".parquet", ".pq")):
         with atomic_path(name) as tmp:
-            pq.write_table(plan.moves, tmp)
+            pq.write_table(table, tmp)
         return
     if not lower.endswith((".csv", ".tsv")):
         raise ParameterError(f"{name}: the plan file must end in .csv, .tsv, .parquet or .pq")
     options = pacsv.WriteOptions(delimiter="\t" if lower.endswith(".tsv") else ",",
                                  quoting_style="needed", quoting_header="none")
     with atomic_path(name) as tmp:
-        pacsv.write_csv(plan.moves, tmp, write_options=options)
+        pacsv.write_csv(table, tmp, write_options=options)
 
 
 def _as_str(c):

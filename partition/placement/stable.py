@@ -41,11 +41,10 @@ fraction.
 
 from __future__ import annotations
 
-import math
 
 import numpy as np
 
-from partition.errors import ParameterError
+from partition.errors import ParameterError, check_move_cost  # noqa: F401 - check_move_cost is re-exported
 from partition.graph import Graph
 from partition.placement.relabel import moved_fraction, relabel_to_match
 from partition.refine.fm import fm_pair
@@ -67,23 +66,6 @@ def _check_old(graph, old_parts):
     if old.size and old.min() < -1:
         raise ParameterError(f"previous shard ids must be >= 0 (or -1 for a node without one), found {int(old.min())}")
     return old
-
-
-def check_move_cost(move_cost):
-    """Validate a move cost ``λ``: a finite number ``>= 0``; returns it as float.
-
-    Raises
-    ------
-    ParameterError
-        Not a number, negative, NaN or infinite.
-    """
-    try:
-        lam = float(move_cost)
-    except (TypeError, ValueError):
-        raise ParameterError(f"move cost must be a number, got {move_cost!r}") from None
-    if not (math.isfinite(lam) and lam >= 0):
-        raise ParameterError(f"move cost must be a finite number >= 0, got {move_cost!r}")
-    return lam
 
 
 def anchored_graph(graph, old_parts, k, move_cost):

@@ -51,47 +51,14 @@ from partition.balance import balance_rule
 from partition.cut import line_cut
 from partition.errors import ParameterError, check_imbalance, check_parts
 from partition.rules import LINKAGES
+from partition.sizing import BYTES_PER_EDGE, fits_driver  # noqa: F401 - the --engine auto rule
 
 __all__ = ["run_spark", "partition_spark", "fits_driver", "result_figures", "MODES", "BYTES_PER_EDGE"]
 
 MODES = ("distributed", "full")
-BYTES_PER_EDGE = 40  # in-memory engine, per undirected edge (CSR both ways, affinities, refinement)
 
 
 EDGES_PER_SHUFFLE_PARTITION = 4_000_000
-
-
-def fits_driver(path_or_stats, memory_bytes=None):
-    """Whether the in-memory engine can run a graph on this machine (``--engine auto``).
-
-    Rule: ``edges × BYTES_PER_EDGE < memory / 4``, where ``edges`` is the
-    number of edge lines (from ``{"edges": m}``) or, for a path, estimated from
-    its size (10 bytes a line for text, 4 for compressed text or Parquet — an
-    overestimate of the edges, so the rule errs towards Spark), and
-    ``memory`` the available physical memory (``psutil``) unless given.
-
-    Parameters
-    ----------
-    path_or_stats : str, path-like or dict
-    memory_bytes : int or None
-
-    Returns
-    -------
-    bool
-    """
-    if isinstance(path_or_stats, dict):
-        edges = int(path_or_stats["edges"])
-    else:
-        p = Path(path_or_stats)
-        files = [p] if p.is_file() else [f for f in p.rglob("*") if f.is_file()]
-        size = sum(f.stat().st_size for f in files)
-        packed = any(str(f).endswith((".gz", ".bz2", ".parquet", ".pq")) for f in files)
-        edges = size // (4 if packed else 10)
-    if memory_bytes is None:
-        import psutil
-
-        memory_bytes = psutil.virtual_memory().available
-    return edges * BYTES_PER_EDGE < memory_bytes / 4
 
 
 _FM_KEYS = ("max_stall", "stall_fraction", "tol", "max_passes", "max_rounds")
