@@ -18,6 +18,7 @@ import sys
 from partition import __version__
 from partition.commands import COMMANDS
 from partition.errors import ShardlineError
+from partition.outputs import check_outputs
 
 EXAMPLE = """example:
   shardline run rides.csv.gz --weight-column rides -k 8 --imbalance 0.03 -o docks-to-shards.csv
@@ -71,6 +72,7 @@ def main(argv=None) -> int:
     parser = build_parser(argv)
     args = parser.parse_args(argv)
     try:
+        check_outputs(args)
         return int(args._run(args) or 0)
     except ShardlineError as exc:
         print(f"shardline: error: {exc}", file=sys.stderr)

@@ -28,6 +28,9 @@ METHOD_NAMES = ("hash", "range", "random", "ldg", "fennel", "labelprop")
 
 
 def add_arguments(parser):
+    from partition.outputs import REPORT, TABLE, declare_outputs
+
+    declare_outputs(parser, output=TABLE, report=REPORT)
     from partition.baselines import DEFAULT_ORDER, ORDERS
 
     parser.add_argument("method", metavar="METHOD", choices=METHOD_NAMES, help="one of: " + ", ".join(METHOD_NAMES))

@@ -24,6 +24,7 @@ EXAMPLES = {
 def add_arguments(parser):
     """Add the ``list`` and ``fetch`` actions to ``parser``."""
     from partition.cli import command_parser
+    from partition.outputs import FOLDER, declare_outputs
 
     actions = parser.add_subparsers(dest="datasets_action", metavar="ACTION")
     actions.required = True
@@ -43,6 +44,7 @@ def add_arguments(parser):
     get.add_argument("--timeout", type=float, default=30.0, metavar="SECONDS",
                      help="network time-out in seconds (default: 30)")
     add_shared(get, "json", "quiet")
+    declare_outputs(get, output_dir=FOLDER)
 
 
 def run(args) -> int:

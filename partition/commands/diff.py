@@ -27,6 +27,9 @@ _TABLE_EXTENSIONS = (".csv", ".tsv", ".parquet", ".pq")
 
 def add_arguments(parser):
     """Add the ``diff`` arguments to ``parser``."""
+    from partition.outputs import TABLE, declare_outputs
+
+    declare_outputs(parser, output=TABLE, pairs=TABLE)
     parser.add_argument("old", metavar="OLD", help="current node→shard file (header node,shard; or Parquet)")
     parser.add_argument("new", metavar="NEW", help="next node→shard file")
     parser.add_argument("-o", "--output", metavar="MOVES",

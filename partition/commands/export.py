@@ -26,6 +26,9 @@ EXAMPLE = "shardline export docks-to-shards.csv -o placement/ --format csv"
 
 def add_arguments(parser):
     """Add the ``export`` arguments to ``parser``."""
+    from partition.outputs import FOLDER, declare_outputs
+
+    declare_outputs(parser, output=FOLDER)
     from partition.placement.export import FORMATS
 
     parser.add_argument("source", metavar="RUN_OUTPUT",

@@ -35,6 +35,9 @@ EXAMPLE = ("shardline place docks-to-shards.csv new-docks.txt -o new-docks-to-sh
 
 def add_arguments(parser):
     """Add the ``place`` arguments to ``parser``."""
+    from partition.outputs import REPORT, TABLE, declare_outputs
+
+    declare_outputs(parser, output=TABLE, merged=TABLE, report=REPORT)
     from partition.placement.online import RULES
 
     parser.add_argument("placement", metavar="PLACEMENT", help="current node→shard file (header node,shard; or Parquet)")

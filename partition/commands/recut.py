@@ -27,6 +27,9 @@ EXAMPLE = ("shardline recut order.csv rides.csv.gz --weight-column rides -k 9 --
 
 def add_arguments(parser):
     """Add the ``recut`` arguments to ``parser``."""
+    from partition.outputs import REPORT, TABLE, declare_outputs
+
+    declare_outputs(parser, output=TABLE, report=REPORT)
     parser.add_argument("order", metavar="ORDER_FILE", help="node,position file from 'shardline run --order-output'")
     add_graph_arguments(parser)
     add_shared(parser, "shards", "imbalance")

@@ -29,6 +29,9 @@ HELP = "draw a run's figures into one self-contained HTML page (loads, cut matri
 
 def add_arguments(parser):
     """Add the ``report`` arguments to ``parser``."""
+    from partition.outputs import FOLDER, HTML, declare_outputs
+
+    declare_outputs(parser, output=HTML, png_dir=FOLDER)
     parser.add_argument("source", metavar="RUN_OUTPUT", help="node→shard file written by 'shardline run'")
     parser.add_argument("-o", "--output", required=True, help="HTML page to write")
     parser.add_argument("--report", help="the run's JSON report (default: RUN_OUTPUT.report.json)")
@@ -104,6 +107,9 @@ def run(args) -> int:
         raise ParameterError(f"--dpi must lie in [20, 600], got {args.dpi}")
     report_path = args.report or str(args.source).rstrip("/") + ".report.json"
     run_rep = _read_json(report_path, "the run's JSON report; give it with --report")
+    from partition.placement.export import check_pairing
+
+    check_pairing(run_rep, report_path, str(args.source))
     specs = _baseline_specs(args.baseline)
     methods = [m.strip() for m in (args.run_baselines or "").split(",") if m.strip()]
     from partition.baselines import METHODS

@@ -49,6 +49,7 @@ DEFAULT_POINTS = 1000
 def add_arguments(parser):
     """Add the ``assign`` and ``moves`` actions to ``parser``."""
     from partition.cli import command_parser
+    from partition.outputs import TABLE, declare_outputs
 
     actions = parser.add_subparsers(dest="ring_action", metavar="ACTION")
     actions.required = True
@@ -69,11 +70,13 @@ def add_arguments(parser):
         p.add_argument("--integer-keys", action="store_true",
                        help="keys are 64-bit integers, hashed as numbers rather than as text")
         add_shared(p, "json", "quiet")
-    assign.add_argument("-o", "--output", required=True, help="CSV file of node,shard rows to write")
+    assign.add_argument("-o", "--output", required=True, help="node,shard rows to write (.csv, .tsv, .parquet)")
     change = moves.add_mutually_exclusive_group(required=True)
     change.add_argument("--add", action="store_true", help="add shard K")
     change.add_argument("--remove", type=int, metavar="S", help="remove shard S")
-    moves.add_argument("-o", "--output", help="CSV file of node,from,to rows for the moved keys")
+    moves.add_argument("-o", "--output", help="node,from,to rows of the moved keys (.csv, .tsv, .parquet)")
+    declare_outputs(assign, output=TABLE)
+    declare_outputs(moves, output=TABLE)
 
 
 def run(args) -> int:
@@ -191,13 +194,14 @@ def _column(path, text, column, delimiter):
 
 
 def _write_rows(path, header, columns):
-    from partition.atomic import atomic_path
+    """Write the columns as a table (CSV, TSV or Parquet by the name), atomically; keys exactly as read."""
+    import numpy as np
+    import pyarrow as pa
 
-    with atomic_path(path) as tmp:
-        with open(tmp, "w", encoding="utf-8", newline="") as fh:
-            w = csv.writer(fh, lineterminator="\n")
-            w.writerow(header)
-            w.writerows(zip(*[c.tolist() for c in columns]))
+    from partition.tables import write_table
+
+    write_table(path, pa.table({name: pa.array(np.asarray(c).tolist() if np.asarray(c).dtype == object else c)
+                                for name, c in zip(header, columns)}))
 
 
 def uneven_floor(m, k, eps):

@@ -18,7 +18,11 @@ EXAMPLE = ("shardline run rides.csv.gz --weight-column rides -k 8 --imbalance 0.
 
 def add_arguments(parser):
     from partition.affinity import DEFAULT_HUB_CAP, METHODS as AFFINITIES
+    from partition.outputs import REPORT, TABLE, TABLE_OR_FOLDER, declare_outputs
     from partition.rules import LINKAGES
+
+    declare_outputs(parser, output=TABLE_OR_FOLDER, report=REPORT, order_output=TABLE_OR_FOLDER,
+                    hierarchy_output=TABLE)
 
     add_graph_arguments(parser)
     add_shared(parser, "shards", "imbalance", "seed")
@@ -129,6 +133,10 @@ def run(args) -> int:
             write_table(tmp[2], order_table(graph, result.order))
         if tmp[3] is not None:
             write_table(tmp[3], hierarchy_table(graph, result.hierarchy))
+        # the report names its outputs' checksums: a reader never pairs this report with another run's output
+        report["outputs"]["sha256"] = {name: None if path is None else file_sha256(path)
+                                       for name, path in (("assignment", tmp[0]), ("order", tmp[2]),
+                                                          ("hierarchy", tmp[3]))}
         with open(tmp[1], "w", encoding="utf-8") as fh:
             fh.write(json.dumps(report, indent=2, sort_keys=True) + "\n")
     if progress:

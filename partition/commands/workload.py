@@ -78,6 +78,8 @@ def _action(acts, name, help, description):
 
 def add_arguments(parser):
     """Add the ``coaccess``, ``partition``, ``route``, ``replay`` and ``synth`` actions."""
+    from partition.outputs import JSON, LOG, REPORT, TABLE, declare_outputs
+
     acts = parser.add_subparsers(dest="workload_action", metavar="ACTION")
     acts.required = True
     co = _action(acts, "coaccess", help="write the co-access graph: edge list + node-weights file",
@@ -91,6 +93,7 @@ def add_arguments(parser):
                     help="memory (default) or spark (a Spark job for large logs; basket text or Parquet)")
     co.add_argument("--master", help="Spark master URL (default local[2])")
     add_shared(co, "seed", "json", "quiet")
+    declare_outputs(co, output=TABLE, node_weights_output=TABLE)
     _build_arguments(co)
 
     pa_ = _action(acts, "partition", help="a key → shard table for the workload (balanced on load)",
@@ -101,6 +104,7 @@ def add_arguments(parser):
     pa_.add_argument("-o", "--output", required=True, help="key→shard file (.csv, .tsv, .parquet; .gz for text)")
     pa_.add_argument("--report", help="JSON report path (default: OUTPUT.report.json)")
     add_shared(pa_, "json", "quiet")
+    declare_outputs(pa_, output=TABLE, report=REPORT)
 
     ro = _action(acts, "route", help="the replica that serves each request (request,shard rows)",
                          description="Route every request of the log (or of its held-out part) by a policy.")
@@ -112,6 +116,7 @@ def add_arguments(parser):
     add_shared(ro, "seed")
     ro.add_argument("-o", "--output", required=True, help="request→shard file to write")
     add_shared(ro, "json", "quiet")
+    declare_outputs(ro, output=TABLE)
 
     re_ = _action(acts, "replay", help="held-out replay: fan-out, load and LRU hit rates per policy",
                           description="Build a key table on the first part of the log (or read --table), replay "
@@ -125,6 +130,7 @@ def add_arguments(parser):
     re_.add_argument("--table-output", help="also write the key→shard table (built plus online-placed keys)")
     re_.add_argument("-o", "--output", help="JSON report to write")
     add_shared(re_, "json", "quiet")
+    declare_outputs(re_, output=JSON, table_output=TABLE)
 
     sy = _action(acts, "synth", help="write a seeded synthetic log (an invented library's reading sessions)",
                          description="Topics with Zipf popularity, slow drift and one burst; also writes the "
@@ -137,6 +143,7 @@ def add_arguments(parser):
     add_shared(sy, "shards_planted")
     sy.add_argument("--mean-size", type=float, default=6.0, help="mean request size (default 6)")
     add_shared(sy, "seed", "json", "quiet")
+    declare_outputs(sy, output=LOG, planted_output=TABLE)
 
 
 def run(args) -> int:
