@@ -6,8 +6,10 @@ prints the cut, balance, communication volume, boundary nodes and fanout of
 :func:`partition.score.score` as tables — the per-shard table and the
 shard×shard cut matrix only for ``k <= 16`` — or, with ``--json``, the whole
 :meth:`partition.score.Score.to_dict` as JSON. With ``--imbalance`` it also
-says whether the balance rule holds; the exit status stays 0 either way (the
-answer is in the report, not an error).
+says whether the balance rule holds, with ``--capacity W`` whether every shard
+weighs at most W. Exit status: 0 when every check asked for holds, 3
+(:data:`CHECK_FAILED`) when one is broken — so a pipeline can gate on it — and
+2 for an error (bad file, bad option), as everywhere.
 """
 
 from __future__ import annotations
@@ -15,11 +17,14 @@ from __future__ import annotations
 import json
 
 from partition.commands.common import add_graph_arguments, add_shared, graph_from_args
-from partition.errors import check_imbalance, check_parts
+from partition.errors import ParameterError, check_imbalance, check_parts
 
 NAME = "score"
 HELP = "validate a node→shard file against the graph and report cut, balance, volume and fanout"
 EXAMPLE = "shardline score rides.csv.gz --weight-column rides docks-to-shards.csv --imbalance 0.03"
+
+CHECK_FAILED = 3
+"""Exit status when the assignment is valid but breaks ``--imbalance`` or ``--capacity``."""
 
 TABLE_MAX_K = 16
 """Largest k for which the per-shard table and the cut matrix are printed."""
@@ -29,7 +34,14 @@ def add_arguments(parser):
     add_graph_arguments(parser)
     parser.add_argument("assignment", metavar="ASSIGNMENT",
                         help="node→shard file: node,shard rows (CSV/TSV/whitespace, .gz) or Parquet")
-    add_shared(parser, "shards_from_file", "imbalance_check", "json", "quiet")
+    add_shared(parser, "shards_from_file", "imbalance_check")
+    parser.add_argument("--capacity", type=float, metavar="W",
+                        help="also check that no shard weighs more than W (default: no check)")
+    parser.add_argument("--node-column", metavar="NAME",
+                        help="ASSIGNMENT's node column (default: by header name node/id/key/…, else the first)")
+    parser.add_argument("--shard-column", metavar="NAME",
+                        help="ASSIGNMENT's shard column (default: by header name shard/part/…, else the second)")
+    add_shared(parser, "json", "quiet")
 
 
 def run(args) -> int:
@@ -38,18 +50,35 @@ def run(args) -> int:
 
     eps = None if args.imbalance is None else check_imbalance(args.imbalance)
     k = None if args.k is None else check_parts(args.k)
+    if args.capacity is not None and not args.capacity >= 0:
+        raise ParameterError(f"--capacity must be a number >= 0, got {args.capacity}")
     graph = graph_from_args(args)
-    parts = read_assignment(args.assignment, graph, k=k)
+    parts = read_assignment(args.assignment, graph, k=k, node_column=args.node_column,
+                            shard_column=args.shard_column)
     result = score(graph, parts, k=k, eps=eps)
+    checks = _checks(result, args.capacity)
     published = _published(args.graph, result)
     if args.json:
         figures = result.to_dict()
-        figures.update({"graph": str(args.graph), "assignment": str(args.assignment), "published": published})
+        figures.update({"graph": str(args.graph), "assignment": str(args.assignment), "published": published,
+                        "checks": checks})
         print(json.dumps(figures, indent=2, sort_keys=True))
     elif not args.quiet:  # with --quiet only the exit status and any error tell
         _print_tables(result, args)
         _print_published(published, result)
-    return 0
+    return CHECK_FAILED if any(not c["holds"] for c in checks.values()) else 0
+
+
+def _checks(s, capacity):
+    """The checks asked for: the balance rule (``--imbalance``) and the capacity (``--capacity``)."""
+    out = {}
+    if s.eps is not None:
+        out["imbalance"] = {"holds": bool(s.balanced), "imbalance_allowed": s.eps, "cap": int(s.cap),
+                            "violations": list(s.violations)}
+    if capacity is not None:
+        over = [int(i) for i in (s.shard_weights > capacity).nonzero()[0]]
+        out["capacity"] = {"holds": not over, "capacity": capacity, "shards_over": over}
+    return out
 
 
 def _published(graph_path, s):
@@ -116,6 +145,9 @@ def _print_tables(s, args):
     if s.eps is not None:
         verdict = "holds" if s.balanced else f"broken ({len(s.violations)} shard(s))"
         rows.append((f"balance rule, ε = {s.eps:g}", f"cap {s.cap:,}: {verdict}"))
+    if args.capacity is not None:
+        over = int((s.shard_weights > args.capacity).sum())
+        rows.append((f"capacity {args.capacity:g}", "holds" if not over else f"broken ({over} shard(s))"))
     for name, value in rows:
         table.add_row(name, value)
     console.print(table)
