@@ -413,3 +413,54 @@ def _check_export(spark, mixed_graph, tmp_path, fmt):
     part.write_bytes(part.read_bytes() + b"\n")
     with pytest.raises(InputError):
         verify_export(tmp_path / "exp-spark")
+
+
+AWKWARD_IDS = ["007", "7", "+5", "5", "-0", "0", "18446744073709551616", "18446744073709551617",
+               "9223372036854775808", "-9223372036854775809", "1.0", "1e3", "größe", "東京", "x"]
+"""Ids one careless reader would merge: zip codes, signs, past-int64 hashes, float-looking text, any script."""
+
+
+def test_awkward_ids_read_and_partition_alike_on_both_engines(spark, tmp_path):
+    """The id rule of partition/ids.py on both engines; the reference is Python's int(): str(int(s)) == s."""
+    from partition.spark.io import collect_graph, read_graph_df
+
+    ids = AWKWARD_IDS
+    rows = [(ids[i], ids[(i + 1) % len(ids)]) for i in range(len(ids))] + [(ids[i], ids[i + 3]) for i in (0, 4, 8)]
+    path = tmp_path / "awkward.txt"
+    path.write_text("".join(f"{a} {b}\n" for a, b in rows), encoding="utf-8")
+    ref = read_graph(path)
+    got = collect_graph(read_graph_df(spark, str(path)))
+    assert sorted(ref.ids.tolist()) == sorted(ids)  # not every id is canonical: all are text, none merged
+    assert list(got.ids) == list(ref.ids)
+    assert np.array_equal(got.indptr, ref.indptr) and np.array_equal(got.indices, ref.indices)
+    mem = partition_graph(ref, 3, 0.0, 2, starts=("hierarchy",), refine=UNIT)
+    parts, _, rep = _run(spark, str(path), 3, "distributed", tmp_path / "w", seed=2)
+    assert np.array_equal(parts, mem.parts) and rep["balance"]["balanced"]
+
+
+def test_invalid_utf8_is_an_error_naming_the_line_on_spark(spark, tmp_path):
+    """Spark keeps the raw bytes; the check must read them before any regex turns a bad byte into U+FFFD."""
+    from partition.spark.io import read_graph_df
+
+    for name, raw, line in (("bad.txt", b"1 2\n2 a\xffb\n3 1\n", 2), ("bad.csv", b"s,d\n1,2\n2,a\xc3\x28\n", 3)):
+        path = tmp_path / name
+        path.write_bytes(raw)
+        with pytest.raises(InputError) as info:
+            read_graph_df(spark, str(path))
+        assert f"{name}, line {line}: is not valid UTF-8" in str(info.value)
+
+
+def test_header_rule_on_spark_is_the_memory_rule(spark, tmp_path):
+    from partition.spark.io import read_graph_df
+
+    text = tmp_path / "h.txt"
+    text.write_text("src dst\n1 2\n2 3\n")
+    csv_ = tmp_path / "n.csv"
+    csv_.write_text("1,2\n2,3\n")
+    for path, option in ((text, "--header"), (csv_, "--no-header")):
+        with pytest.raises(InputError) as mem:
+            read_graph(path)
+        with pytest.raises(InputError) as spk:
+            read_graph_df(spark, str(path))
+        assert option in str(mem.value) and option in str(spk.value)
+        assert "line 1" in str(mem.value) and "line 1" in str(spk.value)

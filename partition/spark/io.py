@@ -143,7 +143,10 @@ def _data_lines(src):
     df = src.read()
     t = F.trim(F.col("line"))
     df = df.filter((F.length(t) > 0) & ~F.substring(t, 1, 1).isin("#", "%"))
-    return df.select(F.regexp_replace("line", "\r$", "").alias("line"), "key")
+    # the UTF-8 test reads the raw bytes: regexp_replace (and split) decode to Java strings, which
+    # would turn a bad byte into U+FFFD and make the line look valid
+    return df.select(F.regexp_replace("line", "\r$", "").alias("line"), "key",
+                     F.is_valid_utf8("line").alias("utf8"))
 
 
 def _csv_fields(src, delim, header, wanted, weighted, kind):
@@ -207,22 +210,22 @@ def _text_fields(src, need, delimiter=None):
 
     lines = _data_lines(src)
     split = r"[\s,;]+" if delimiter is None else (rf"\s*{re.escape(delimiter)}\s*" if delimiter.strip() else r"\s+")
-    df = lines.select(F.array_remove(F.split(F.trim("line"), split), "").alias("f"), "key", "line")
-    bad = df.filter((F.size("f") != need) | ~F.is_valid_utf8("line")).agg(F.min_by("line", "key").alias("line"),
+    df = lines.select(F.array_remove(F.split(F.trim("line"), split), "").alias("f"), "key", "line", "utf8")
+    bad = df.filter((F.size("f") != need) | ~F.col("utf8")).agg(F.min_by("line", "key").alias("line"),
                                                                           F.min("key").alias("key")).collect()[0]
     if bad["key"] is not None:
         _refuse_invalid_utf8(src, lines.filter(F.col("key") == bad["key"]))
         found = len([f for f in re.split(split, (bad["line"] or "").strip()) if f])
         hint = "; pass --weighted to read the third field as an edge weight" if need == 2 and found == 3 else ""
         raise src.error(f"expected {need} fields, found {found}: {bad['line'].strip()[:80]!r}{hint}", bad["key"])
-    return df.drop("line")
+    return df.drop("line", "utf8")
 
 
 def _refuse_invalid_utf8(src, lines):
     """The first line of ``lines`` that is not valid UTF-8, as an error naming it (Spark keeps the raw bytes)."""
     from pyspark.sql import functions as F
 
-    bad = _first(lines.filter(~F.is_valid_utf8("line")))
+    bad = _first(lines.filter(~F.col("utf8")))
     if bad is not None:
         raise src.error("is not valid UTF-8 text; ids must be UTF-8 text", bad)
 
