@@ -53,6 +53,7 @@ from partition.errors import InputError, ParameterError
 from partition.node_shards import read_node_shards
 
 __all__ = ["export_run", "verify_export", "check_export", "publish_export", "file_sha256", "find_input_graph",
+           "check_pairing",
            "manifest_head", "FORMATS", "MANIFEST"]
 
 FORMATS = ("parquet", "csv", "jsonl")
@@ -110,6 +111,28 @@ def _read_report(path):
             or "graph" not in report["input"]:
         raise InputError(path, "is not a run report: it lacks 'k' or 'input.graph'")
     return report
+
+
+def check_pairing(report, report_path, output, name="assignment"):
+    """Refuse a run output that is not the one its report was written with.
+
+    A run records the SHA-256 of each output beside it (``outputs.sha256``);
+    when the file at ``output`` has another checksum, the two come from
+    different runs (or the file was edited) and no figure of the report
+    describes it. Reports without the record (older runs) are accepted.
+
+    Raises
+    ------
+    InputError
+    """
+    recorded = ((report.get("outputs") or {}).get("sha256") or {}).get(name)
+    if not recorded or not os.path.exists(output):
+        return
+    digest = file_sha256(output)
+    if digest != recorded:
+        raise InputError(output, f"SHA-256 {digest[:16]}… differs from the {recorded[:16]}… recorded in "
+                                 f"{report_path}: this file and that report come from different runs; pass "
+                                 "the run's own report with --report")
 
 
 def find_input_graph(report, report_path):
@@ -324,6 +347,7 @@ def check_export(assignment, out_dir, fmt, report, graph, force):
         if not force:
             raise ParameterError(f"{out_dir} already exists; use --force to replace it")
     rep = _read_report(report_path)
+    check_pairing(rep, report_path, assignment)
     graph_path, graph_sum = _check_graph(rep, report_path, graph)
     return assignment, out_dir, report_path, rep, graph_path, graph_sum
 

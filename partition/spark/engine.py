@@ -467,6 +467,9 @@ def run_spark(graph_path, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum",
         write_order(spark, sg, order, order_output)
     rep["outputs"] = {"assignment": None if output is None else str(output), "report": report,
                       "order": None if order_output is None else str(order_output)}
+    # checksums of the outputs the driver can read (local disk or a shared mount), as the in-memory run records
+    rep["outputs"]["sha256"] = {name: file_sha256(str(path)) if path is not None and os.path.exists(str(path))
+                                else None for name, path in (("assignment", output), ("order", order_output))}
     if report is not None:
         write_text(report, json.dumps(rep, indent=2, default=str) + "\n")
     return rep
