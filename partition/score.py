@@ -111,7 +111,7 @@ class Score:
         balance = None
         if self.eps is not None:
             balance = {
-                "allowed_imbalance": self.eps,
+                "imbalance_allowed": self.eps,
                 "cap": self.cap,
                 "holds": self.balanced,
                 "violations": list(self.violations),

@@ -62,7 +62,7 @@ def test_manifest_checksums_equal_hashlib(run_output, tmp_path, fmt):
     assert manifest["input"]["bytes"] == edges.stat().st_size
     assert manifest["source"]["assignment"]["sha256"] == _sha(out)
     report = json.loads((folder / "a.csv.report.json").read_text())
-    assert manifest["k"] == report["k"] == 4 and manifest["seed"] == 3 and manifest["imbalance"] == 0.05
+    assert manifest["k"] == report["k"] == 4 and manifest["seed"] == 3 and manifest["imbalance_allowed"] == 0.05
     assert manifest["metrics"]["cut_fraction"] == report["result"]["cut_fraction"]
     assert "cut_matrix" not in manifest["metrics"]
     assert manifest["nondeterministic"] == ["created_utc"]

@@ -24,6 +24,8 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from conftest import AWKWARD
+
 from partition.cli import main
 from partition.edgelist import read_graph
 from partition.errors import InputError
@@ -41,17 +43,6 @@ def python_canonical(s):
     return str(v) == s and INT64_MIN <= v <= INT64_MAX
 
 
-AWKWARD = st.one_of(
-    st.integers(INT64_MIN, INT64_MAX).map(str),                        # canonical
-    st.integers(0, 10**6).map(lambda v: "0" + str(v)),                 # leading zero: 007
-    st.integers(0, 10**6).map(lambda v: "+" + str(v)),                 # explicit plus
-    st.just("-0"),
-    st.integers(2**63, 2**70).map(str),                                # past int64 (unsigned hashes)
-    st.integers(INT64_MIN - 2**10, INT64_MIN - 1).map(str),
-    st.floats(allow_nan=False, allow_infinity=False).map(repr),        # 1.0, 1e+20
-    st.text(st.characters(codec="utf-8", categories=("L", "N", "P", "S")), min_size=1, max_size=6),
-)
-"""Ids that are easy to merge by accident: zip codes, signs, 64-bit hashes, float-looking text, any script."""
 
 
 @given(st.lists(AWKWARD, min_size=1, max_size=30))

@@ -274,7 +274,7 @@ def test_to_dict_is_json_and_deterministic():
     again = json.dumps(score(g, parts, 4, eps=0.1).to_dict(), sort_keys=True)
     assert first == again
     d = json.loads(first)
-    assert d["balance"]["allowed_imbalance"] == 0.1
+    assert d["balance"]["imbalance_allowed"] == 0.1
     assert len(d["cut_matrix"]) == 4 and d["cut_pairs"] is None
 
 

@@ -464,3 +464,36 @@ def test_header_rule_on_spark_is_the_memory_rule(spark, tmp_path):
             read_graph_df(spark, str(path))
         assert option in str(mem.value) and option in str(spk.value)
         assert "line 1" in str(mem.value) and "line 1" in str(spk.value)
+
+
+def test_random_awkward_id_sets_come_back_alike_on_both_engines(spark, tmp_path_factory):
+    """Hypothesis over awkward ids (tests/conftest.py), written with Python's csv module; a few draws in CI."""
+    import csv
+    import io
+
+    from hypothesis import HealthCheck, given, settings
+    from hypothesis import strategies as st
+
+    from conftest import AWKWARD
+    from partition.spark.io import collect_graph, read_graph_df
+
+    @given(st.lists(AWKWARD, min_size=3, max_size=12, unique=True))
+    @settings(max_examples=4, deadline=None, suppress_health_check=list(HealthCheck), database=None)
+    def check(ids):
+        tmp = tmp_path_factory.mktemp("awk")
+        buf = io.StringIO()
+        w = csv.writer(buf, lineterminator="\n")
+        w.writerow(["src", "dst"])
+        w.writerows([(ids[i], ids[(i + 1) % len(ids)]) for i in range(len(ids))])
+        path = tmp / "g.csv"
+        path.write_text(buf.getvalue(), encoding="utf-8")
+        ref = read_graph(path)
+        got = collect_graph(read_graph_df(spark, str(path)))
+        assert sorted(str(v) for v in ref.ids.tolist()) == sorted(ids)
+        assert [str(v) for v in got.ids.tolist()] == [str(v) for v in ref.ids.tolist()]
+        assert got.ids.dtype.kind == ref.ids.dtype.kind
+        mem = partition_graph(ref, 2, 0.0, 0, starts=("hierarchy",), refine=UNIT)
+        parts, _, _ = _run(spark, str(path), 2, "distributed", tmp / "w", seed=0)
+        assert np.array_equal(parts, mem.parts)
+
+    check()

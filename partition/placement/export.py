@@ -403,7 +403,7 @@ def manifest_head(rep, fmt, graph_path, graph_sum, assignment, report_path, crea
                    "report": {"path": report_path, "sha256": file_sha256(report_path)},
                    "tool": rep.get("tool")},
         "k": int(rep["k"]),
-        "imbalance": rep.get("imbalance_allowed"),
+        "imbalance_allowed": rep.get("imbalance_allowed"),
         "seed": rep.get("seed"),
         "engine": rep.get("engine"),
         "options": rep.get("options"),

@@ -196,7 +196,7 @@ def recut(graph, order, k, eps=0.0, previous=None, move_cost=1.0, seed=0, refine
         return cut_total(graph.indptr, graph.indices, w_int, p) / scale
 
     parts = np.asarray(line_cut(order, graph.node_weights, k, eps), dtype=np.int64)
-    stats = {"k": k, "eps": eps, "cut_line": cut(parts), "floor": rule.floor}
+    stats = {"k": k, "imbalance_allowed": eps, "cut_line": cut(parts), "floor": rule.floor}
     if refine and k > 1:
         parts, wst = refine_window(graph, order, parts, k, rule, w=window)
         parts = parts.astype(np.int64)

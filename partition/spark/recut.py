@@ -145,7 +145,7 @@ def recut_spark(spark, sg, order, k, eps=0.0, seed=0, refine=True, window=None, 
         return result_figures(spark, sg, p, k)["cut_weight"]
 
     parts = np.asarray(line_cut(order, nweights, k, eps), dtype=np.int64)
-    stats = {"k": k, "eps": eps, "cut_line": cut(parts), "floor": int(rule.floor)}
+    stats = {"k": k, "imbalance_allowed": eps, "cut_line": cut(parts), "floor": int(rule.floor)}
     if refine and k > 1:
         parts = spark_window(spark, sg, order, parts, rule, nweights, w=window, progress=progress)
     stats["cut_window"] = cut(parts)
