@@ -8,18 +8,16 @@ as written, so ``007`` never matches the node ``7``. Writing puts a header
 
 from __future__ import annotations
 
-import gzip
 import os
 
 import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
-import pyarrow.parquet as pq
 
-from partition.atomic import atomic_path, write_bytes
 from partition.errors import InputError, ParameterError, check_parts
 from partition.ids import canonical_ints
 from partition.node_shards import SHARD_NAMES, open_node_shards, read_node_shards
+from partition.tables import write_table
 
 __all__ = ["read_assignment", "write_assignment", "open_node_shards", "OUTPUT_EXTENSIONS"]
 
@@ -128,29 +126,10 @@ def write_assignment(path, graph, parts, fmt=None) -> None:
     quote, a line break, leading/trailing blanks or a leading ``#``/``%``
     (RFC 4180 quoting); gzip output carries no time stamp.
     """
-    name = os.fspath(path)
     parts = _check_parts(graph, parts)
-    lower = name.lower()
-    base = lower[:-3] if lower.endswith(".gz") else lower
-    if fmt is None:
-        fmt = "parquet" if base.endswith((".parquet", ".pq")) else "tsv" if base.endswith(".tsv") else "csv"
-    if fmt not in ("csv", "tsv", "parquet"):
-        raise ParameterError(f"unknown assignment format {fmt!r}; expected csv, tsv or parquet")
-    if fmt == "parquet" and lower.endswith(".gz"):
-        raise ParameterError("Parquet output is compressed internally; drop the .gz suffix")
     integer_ids = graph.ids.dtype.kind in "iu"
     node_arr = pa.array(graph.ids, type=pa.int64() if integer_ids else pa.string())
-    shard_arr = pa.array(parts, type=pa.int64())
-    if fmt == "parquet":
-        with atomic_path(name) as tmp:
-            pq.write_table(pa.table({"node": node_arr, "shard": shard_arr}), tmp)
-        return
-    delim = "," if fmt == "csv" else "\t"
-    text = pc.cast(node_arr, pa.string()) if integer_ids else _quote(node_arr, delim)
-    rows = pc.binary_join_element_wise(text, pc.cast(shard_arr, pa.string()), delim)
-    rows = pc.cast(pc.binary_join_element_wise(rows, "", "\n"), pa.large_string())
-    data = f"node{delim}shard\n".encode() + _string_bytes(rows)
-    write_bytes(name, gzip.compress(data, compresslevel=6, mtime=0) if lower.endswith(".gz") else data)
+    write_table(path, pa.table({"node": node_arr, "shard": pa.array(parts, type=pa.int64())}), fmt=fmt)
 
 
 # --- matching ids -------------------------------------------------------------
@@ -193,23 +172,6 @@ def _check_parts(graph, parts):
     if parts.size and parts.min() < 0:
         raise ParameterError(f"parts must be non-negative, found {int(parts.min())}")
     return parts.astype(np.int64, copy=False)
-
-
-def _quote(text, delim):
-    """RFC 4180 quoting of the ids that need it (vectorised)."""
-    pattern = r'["\n\r' + ("," if delim == "," else "\t") + r"]|^\s|\s$|^[#%]|^$"
-    need = pc.match_substring_regex(text, pattern)
-    quoted = pc.binary_join_element_wise('"', pc.replace_substring(text, '"', '""'), '"', "")
-    return pc.if_else(need, quoted, text)
-
-
-def _string_bytes(arr):
-    """The concatenated UTF-8 bytes of a large_string array without nulls."""
-    arr = arr.combine_chunks() if isinstance(arr, pa.ChunkedArray) else arr
-    if len(arr) == 0:
-        return b""
-    offsets = np.frombuffer(arr.buffers()[1], dtype=np.int64)[arr.offset : arr.offset + len(arr) + 1]
-    return arr.buffers()[2].to_pybytes()[offsets[0] : offsets[-1]]
 
 
 def _show(x):

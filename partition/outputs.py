@@ -22,7 +22,7 @@ import os
 
 from partition.errors import ParameterError
 
-__all__ = ["Kind", "TABLE", "TABLE_OR_FOLDER", "JSON", "REPORT", "HTML", "LOG", "FOLDER", "declare_outputs", "check_outputs"]
+__all__ = ["Kind", "TABLE", "TABLE_OR_FOLDER", "JSON", "REPORT", "HTML", "LOG", "FOLDER", "declare_outputs", "check_outputs", "refuse_inputs"]
 
 class Kind:
     """What an output names: the extensions its writer chooses a format by, and whether it is a folder."""
@@ -69,6 +69,19 @@ def _same(a, b):
         return os.path.abspath(a) == os.path.abspath(b)
 
 
+def refuse_inputs(label, path, inputs):
+    """Refuse ``path`` (the output of option ``label``) when it names one of ``inputs`` ((name, path) pairs).
+
+    Raises
+    ------
+    ParameterError
+    """
+    for name, value in inputs:
+        if value is not None and _same(path, value):
+            raise ParameterError(f"{label} {path} is also an input of this command ({name.upper()}); "
+                                 "write the output elsewhere, an input is never overwritten")
+
+
 def check_outputs(args, extra=()):
     """Refuse output paths that would overwrite an input, collide, or name the wrong kind of file.
 
@@ -97,15 +110,13 @@ def check_outputs(args, extra=()):
     outputs += [(label, os.fspath(path), JSON) for label, path in extra if path is not None]
     inputs = []
     for dest, value in sorted(vars(args).items()):
-        if dest in kinds or dest.startswith("_") or not isinstance(value, (str, os.PathLike)):
+        if dest in kinds or dest.startswith("_"):
             continue
-        if os.path.exists(value):
-            inputs.append((dest, os.fspath(value)))
+        for v in value if isinstance(value, (list, tuple)) else [value]:
+            if isinstance(v, (str, os.PathLike)) and os.path.exists(v):
+                inputs.append((dest, os.fspath(v)))
     for i, (label, path, kind) in enumerate(outputs):
-        for dest, value in inputs:
-            if _same(path, value):
-                raise ParameterError(f"{label} {path} is also an input of this command ({dest.upper()}); "
-                                     "write the output elsewhere, an input is never overwritten")
+        refuse_inputs(label, path, inputs)
         for other_label, other, _ in outputs[:i]:
             if _same(path, other):
                 raise ParameterError(f"{other_label} and {label} both name {path}; give each output its own path")

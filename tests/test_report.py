@@ -220,7 +220,12 @@ def test_bad_input_stops_with_exit_2_and_no_page(small_run, tmp_path, capsys):
     out = tmp_path / "page.html"
     # the output may not be one of the inputs
     assert main(["report", str(tmp / "shards.csv"), "-o", str(tmp / "shards.csv")]) == 2
-    assert "is one of the inputs" in capsys.readouterr().err
+    assert "is also an input" in capsys.readouterr().err
+    # nor a baseline given as NAME=FILE
+    fake = tmp_path / "fake.html"
+    fake.write_text("node,shard\n")
+    assert main(["report", str(tmp / "shards.csv"), "-o", str(fake), "--baseline", f"ldg={fake}"]) == 2
+    assert "is also an input" in capsys.readouterr().err
     # a missing report names the file
     assert main(["report", str(tmp / "order.csv"), "-o", str(out)]) == 2
     assert "order.csv.report.json: no such file" in capsys.readouterr().err

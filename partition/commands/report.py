@@ -117,11 +117,10 @@ def run(args) -> int:
     for m in methods:
         if m not in METHODS:
             raise ParameterError(f"unknown baseline {m!r}; choose from {', '.join(METHODS)}")
-    inputs = [args.source, report_path, args.graph, args.order, args.workload] + [p for _, p in specs]
-    out_real = os.path.realpath(args.output)
-    for path in inputs:
-        if path is not None and os.path.realpath(path) == out_real:
-            raise ParameterError(f"the output {args.output} is one of the inputs; choose another file")
+    from partition.outputs import refuse_inputs
+
+    # the command line checked the arguments as given; the files of NAME=FILE baselines are derived from them
+    refuse_inputs("-o", args.output, [(f"baseline {n}", p) for n, p in specs])
 
     from partition.progress import progress_for
 

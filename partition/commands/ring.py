@@ -200,8 +200,8 @@ def _write_rows(path, header, columns):
 
     from partition.tables import write_table
 
-    write_table(path, pa.table({name: pa.array(np.asarray(c).tolist() if np.asarray(c).dtype == object else c)
-                                for name, c in zip(header, columns)}))
+    write_table(path, pa.table({name: pa.array(c.tolist() if c.dtype == object else c)
+                                for name, c in zip(header, map(np.asarray, columns))}))
 
 
 def uneven_floor(m, k, eps):
