@@ -367,16 +367,22 @@ def _slow_text(raw, ncols, path, delimiter=None):
 
 
 class _RowLines:
-    """Maps a data-row index to its 1-based line number in the raw text."""
+    """Maps a data-row index to its 1-based line number in the raw text.
 
-    def __init__(self, raw):
+    With ``leading_comments`` (CSV/TSV) only the comment lines above the
+    first data line are comments; below it a line starting with ``#`` or
+    ``%`` is a row (an id may start with either).
+    """
+
+    def __init__(self, raw, leading_comments=False):
         self.raw = raw
+        self.leading = leading_comments
 
     def __call__(self, row):
         count = -1
         for lineno, line in enumerate(self.raw.split(b"\n"), start=1):
             s = line.strip()
-            if not s or s[:1] in (b"#", b"%"):
+            if not s or (s[:1] in (b"#", b"%") and not (self.leading and count >= 0)):
                 continue
             count += 1
             if count == row:
@@ -386,7 +392,7 @@ class _RowLines:
 
 class _HeadedRowLines(_RowLines):
     def __init__(self, raw, skip):
-        super().__init__(raw)
+        super().__init__(raw, leading_comments=True)
         self.skip = skip
 
     def __call__(self, row):
@@ -430,8 +436,7 @@ def _first_lines(data, count=5):
 
 def _read_headed(path, wanted, weighted, delim, kind, header, ncols=3):
     raw = _read_bytes(path)
-    data = _COMMENT_LINE.sub(b"", raw) if (b"#" in raw or b"%" in raw) else raw
-    data = data.lstrip(b"\n")
+    data = raw[_leading_comments_end(raw):]  # comments only above the header: below it, '#x' may be an id
     if not data.strip():
         raise InputError(path, "the file is empty")
     delim = delim or sniff_delimiter(_first_lines(data), kind)
@@ -494,6 +499,19 @@ def _first_data_line(raw):
     return None
 
 
+def _leading_comments_end(raw):
+    """Byte offset of the first line of ``raw`` that is neither blank nor a ``#``/``%`` comment."""
+    pos = 0
+    while pos < len(raw):
+        end = raw.find(b"\n", pos)
+        end = len(raw) if end < 0 else end + 1
+        s = raw[pos:end].strip()
+        if s and s[:1] not in (b"#", b"%"):
+            return pos
+        pos = end
+    return pos
+
+
 def _first_bad_csv_line(raw, delim, width, skip):
     """``(line, message)`` of the first data line the CSV parser rejects (bad UTF-8 or a wrong field count)."""
     import csv
@@ -501,7 +519,7 @@ def _first_bad_csv_line(raw, delim, width, skip):
     seen = -1
     for lineno, line in enumerate(raw.split(b"\n"), start=1):
         s = line.strip()
-        if not s or s[:1] in (b"#", b"%"):
+        if not s or (s[:1] in (b"#", b"%") and seen < 0):
             continue
         seen += 1
         if seen < skip:

@@ -23,8 +23,9 @@ Ids and shards
     allowed). A node listed twice, an empty id, a malformed row or bytes that
     are not UTF-8 are errors naming the file and the line (Parquet: the row).
 
-Blank lines and lines whose first non-blank character is ``#`` or ``%`` are
-skipped, as in the edge-list reader. Text cannot hold ids with line breaks;
+Blank lines are skipped, and so are lines whose first non-blank character is
+``#`` or ``%`` — in CSV/TSV tables only above the first row (below it such a
+line is a row, since an id may start with either), as in the edge-list reader. Text cannot hold ids with line breaks;
 such tables round-trip through Parquet only. Text is parsed column-wise by
 ``pyarrow.csv``; the line of each row is known from a vectorised scan of the
 line breaks.
@@ -263,6 +264,10 @@ def _text_columns(name, raw, node_column, shard_column, shard_names):
     except UnicodeDecodeError:
         raise InputError(name, "is not valid UTF-8 text", first_no + 1) from None
     mode = _mode(name, raw, starts, ends, data_lines)
+    if mode != "space":  # CSV-like: comments only above the first row; '#x' below it is an id
+        below = np.arange(data.size) > first_no
+        data |= below & (ends > starts) & _nonblank(buf, starts, ends)
+        data_lines = np.flatnonzero(data)
     fields = _split(first, mode)
     lower = [f.strip().lower() for f in fields]
     named = node_column is not None or shard_column is not None
@@ -359,6 +364,13 @@ def _scan_lines(buf):
     lead = buf[first[has]]
     data[has] = (lead != _HASH) & (lead != _PERCENT)
     return starts, ends, data
+
+
+def _nonblank(buf, starts, ends):
+    """Whether each line holds a byte other than blanks, tabs and carriage returns."""
+    blank = (buf == _SPACE) | (buf == _TAB) | (buf == _CR) | (buf == _NL)
+    count = np.concatenate(([0], np.cumsum(~blank, dtype=np.int64)))
+    return count[ends] - count[starts] > 0
 
 
 def _keep_lines(buf, starts, ends, data, squeeze):

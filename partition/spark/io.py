@@ -136,13 +136,24 @@ def _first(df, col="key"):
     return None if got is None else int(got)
 
 
-def _data_lines(src):
-    """Non-blank, non-comment lines of a text source: ``line`` (text) and ``key`` (see :class:`_Source`)."""
+def _data_lines(src, leading_comments=False):
+    """Non-blank, non-comment lines of a text source: ``line`` (text) and ``key`` (see :class:`_Source`).
+
+    With ``leading_comments`` (CSV/TSV, as :mod:`partition.edgelist` reads
+    them) only the comment lines above the first data line are comments;
+    below it a line starting with ``#`` or ``%`` is a row.
+    """
     from pyspark.sql import functions as F
 
     df = src.read()
     t = F.trim(F.col("line"))
-    df = df.filter((F.length(t) > 0) & ~F.substring(t, 1, 1).isin("#", "%"))
+    comment = F.substring(t, 1, 1).isin("#", "%")
+    df = df.filter(F.length(t) > 0)
+    if leading_comments:
+        first = _first(df.filter(~comment))
+        df = df.filter(~comment | (F.col("key") > F.lit(-1 if first is None else first)))
+    else:
+        df = df.filter(~comment)
     # the UTF-8 test reads the raw bytes: regexp_replace (and split) decode to Java strings, which
     # would turn a bad byte into U+FFFD and make the line look valid
     return df.select(F.regexp_replace("line", "\r$", "").alias("line"), "key",
@@ -165,7 +176,7 @@ def _csv_fields(src, delim, header, wanted, weighted, kind):
     from pyspark.sql import functions as F
 
     path = src.path
-    lines = _data_lines(src)
+    lines = _data_lines(src, leading_comments=True)
     _refuse_invalid_utf8(src, lines)
     first = lines.orderBy("key").limit(5).collect()
     if not first:
