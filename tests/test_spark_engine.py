@@ -108,10 +108,15 @@ def test_csv_with_header_and_weight_column_read_like_memory(spark, tmp_path):
     got = collect_graph(read_graph_df(spark, str(tsv), header=False))
     assert np.array_equal(got.ids, ref.ids) and np.array_equal(got.indices, ref.indices)
     bad = tmp_path / "bad.csv"
-    bad.write_text("a,b\n1,2\n# note\n2,3,4\n")
+    bad.write_text("# note above the header\na,b\n1,2\n2,3,4\n")
     with pytest.raises(InputError) as err:
         read_graph_df(spark, str(bad))
     assert err.value.line == 4 and "bad.csv" in str(err.value)
+    bad.write_text("a,b\n1,2\n# below the header a line is a row\n2,3\n")
+    for reader in (lambda: read_graph(bad), lambda: read_graph_df(spark, str(bad))):
+        with pytest.raises(InputError) as err:
+            reader()
+        assert err.value.line == 3 and "expected 2 fields" in str(err.value)
     with pytest.raises(InputError) as err:
         read_graph_df(spark, str(path), source_column="origin")
     assert "origin" in str(err.value)
