@@ -142,7 +142,7 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
     ParameterError
         Bad ``k``, ε, options, or a resume with other options.
     """
-    from partition.partitioner import DEFAULT_REFINE, STEP_OPTIONS, _resolve_starts
+    from partition.partitioner import STEP_OPTIONS
     from partition.spark.affinity import edge_affinity_df
     from partition.spark.checkpoint import Checkpoints
     from partition.spark.hierarchy import COLLECT_EDGES, build_hierarchy_df
@@ -239,9 +239,9 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
             elif step == "swaps":
                 parts = spark_swaps(spark, sg, parts, rule, nweights, progress=progress, blocks=blocks("cut"))
             else:  # not unit based: on the driver with the in-memory step
-                from partition.partitioner import _refine_step
+                from partition.partitioner import refine_step
 
-                parts = _refine_step(step, graph(), order, parts, k, rule, h, seed)
+                parts = refine_step(step, graph(), order, parts, k, rule, h, seed)
             parts = np.asarray(parts, dtype=np.int64)
             ck.save(key, {"parts": parts})
             stage(f"{name}: {step}", t, where="spark" if step in UNIT_STEPS else "driver")
