@@ -79,7 +79,7 @@ from partition.refine.gains import cut_total, cut_weights
 from partition.rules import LINKAGES
 
 __all__ = ["PartitionResult", "partition_graph", "STARTS", "REFINEMENTS", "DEFAULT_REFINE", "STEP_OPTIONS",
-           "DRIVER_ONLY"]
+           "DRIVER_ONLY", "refine_step"]
 
 STARTS = ("hierarchy", "spectral", "degree")  # and "hierarchy:<j>": the hierarchy of seed + j
 REFINEMENTS = ("window", "multilevel", "vcycle", "flow", "fm", "swaps", "kway", "prune", "pick")
@@ -282,7 +282,7 @@ def partition_graph(
             name, order, parts, hier = st
             t = time.perf_counter()
             before = _cut(graph, weights, parts)
-            parts = _refine_step(step, graph, order, parts, k, rule, hier, seed, aff)
+            parts = refine_step(step, graph, order, parts, k, rule, hier, seed, aff)
             after = _cut(graph, weights, parts)
             if after > before:  # a step never makes the cut worse
                 raise AssertionError(f"refinement step {step} increased the cut ({before} -> {after})")
@@ -382,8 +382,11 @@ def _vcycles(graph, parts, rule, seed, opts, affinity):
     return parts
 
 
-def _refine_step(step, graph, order, parts, k, rule, hier, seed, affinity=None):
-    """Run one refinement step of the plan; ``affinity`` (the pipeline's edge affinities) feeds the
+def refine_step(step, graph, order, parts, k, rule, hier, seed, affinity=None):
+    """Run one refinement step of the plan on ``parts`` and return the new shards.
+
+    ``step`` is a name of :data:`REFINEMENTS`, run with its options of
+    :data:`STEP_OPTIONS`; ``affinity`` (the pipeline's edge affinities) feeds the
     V-cycles' clustering rating and defaults to the Jaccard affinity of ``graph``."""
     opts = STEP_OPTIONS[step]
     if step == "window":

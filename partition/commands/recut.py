@@ -127,10 +127,11 @@ def _run_spark(args, k, eps, report_path):
     from partition.atomic import write_text
     from partition.errors import ParameterError
     from partition.placement.export import file_sha256
-    from partition.spark.engine import result_figures, write_assignment
+    from partition.spark.figures import result_figures
     from partition.spark.io import read_graph_df
     from partition.spark.recut import read_order_df, recut_spark
     from partition.spark.session import spark_session
+    from partition.spark.tables import write_assignment
     import os
 
     if args.previous:

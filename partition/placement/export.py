@@ -54,11 +54,12 @@ from partition.node_shards import read_node_shards
 
 __all__ = ["export_run", "verify_export", "check_export", "publish_export", "file_sha256", "find_input_graph",
            "check_pairing",
-           "manifest_head", "FORMATS", "MANIFEST"]
+           "manifest_head", "data_files", "FORMATS", "EXTENSIONS", "MANIFEST"]
 
 FORMATS = ("parquet", "csv", "jsonl")
 MANIFEST = "manifest.json"
-_EXT = {"parquet": "parquet", "csv": "csv", "jsonl": "jsonl"}
+# the file-name ending of an exported table in each format
+EXTENSIONS = {"parquet": "parquet", "csv": "csv", "jsonl": "jsonl"}
 _LEFT_OUT = ("cut_matrix", "cut_pairs")
 
 
@@ -77,7 +78,7 @@ def file_sha256(path, chunk=1 << 20):
     """
     if os.path.isdir(path):
         h = hashlib.sha256()
-        for rel in _data_files(path):
+        for rel in data_files(path):
             h.update(rel.encode("utf-8") + b"\0")
             h.update(bytes.fromhex(file_sha256(os.path.join(path, rel), chunk)))
         return h.hexdigest()
@@ -374,8 +375,13 @@ def publish_export(out_dir, manifest, fill):
     return manifest
 
 
-def _data_files(folder):
-    """Relative paths of the data files under ``folder``, sorted; hidden and ``_`` names left out."""
+def data_files(folder):
+    """Relative paths (``/``-separated) of the data files under ``folder``, sorted.
+
+    Names starting with ``.`` or ``_`` (checksums, ``_SUCCESS`` markers, and
+    folders so named) are left out: these are the files
+    :func:`file_sha256` hashes for a folder dataset.
+    """
     found = []
     for root, dirs, files in os.walk(folder):
         dirs[:] = sorted(d for d in dirs if not d.startswith((".", "_")))
@@ -421,7 +427,7 @@ def _write_all(folder, ids, shards, k, fmt, progress=None):
     """Write the assignment and the per-shard files; returns the manifest's file list."""
     if progress is not None:
         progress.task(f"export: writing {k + 1:,} {fmt} tables", total=k + 1)
-    ext = _EXT[fmt]
+    ext = EXTENSIONS[fmt]
     files = []
     node_arr = _id_array(ids)
 

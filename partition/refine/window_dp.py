@@ -64,7 +64,7 @@ from partition.cut import boundaries_from_parts, check_order, parts_from_boundar
 from partition.errors import ParameterError
 from partition.refine.gains import cut_total, cut_weights
 
-__all__ = ["chain_dp", "window_dp_round", "refine_window", "line_edges", "windows", "default_window"]
+__all__ = ["chain_dp", "window_dp_round", "refine_window", "line_edges", "windows", "default_window", "free_mask"]
 
 _EMPTY_I64 = np.empty(0, dtype=np.int64)
 
@@ -357,8 +357,13 @@ def window_dp_round(p, q, ew, prefix, boundaries, free, w, cap, floor):
     return new, int(gain)
 
 
-def _free_mask(k, round_index, chain_length):
-    """Free boundaries of a round: all but every (L+1)-th, shifted each round."""
+def free_mask(k, round_index, chain_length):
+    """Which of the ``k - 1`` boundaries a window-DP round may move, as a boolean array.
+
+    All but every (L+1)-th boundary (L = ``chain_length``), the fixed ones
+    shifted each round so that every boundary moves in some round; all are
+    free when ``chain_length`` is 0.
+    """
     j = np.arange(1, k, dtype=np.int64)
     if chain_length == 0:
         return np.ones(k - 1, dtype=bool)
@@ -438,7 +443,7 @@ def refine_window(graph, order, cut, k, rule, w=None, chain_length=1, max_rounds
     total = 0
     idle = 0
     for r in range(max_rounds if k > 1 else 0):
-        nb, g = window_dp_round(p, q, ew, prefix, b, _free_mask(k, r, chain_length), w, rule.cap, rule.floor)
+        nb, g = window_dp_round(p, q, ew, prefix, b, free_mask(k, r, chain_length), w, rule.cap, rule.floor)
         idle = idle + 1 if np.array_equal(nb, b) else 0
         b = nb
         total += g

@@ -36,13 +36,11 @@ from __future__ import annotations
 
 import json
 import os
-import shutil
 import tempfile
 import time
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 
 from partition import __version__
 from partition.affinity import DEFAULT_HUB_CAP, METHODS as AFFINITIES
@@ -53,7 +51,7 @@ from partition.errors import ParameterError, check_imbalance, check_parts
 from partition.rules import LINKAGES
 from partition.sizing import BYTES_PER_EDGE, fits_driver  # noqa: F401 - the --engine auto rule
 
-__all__ = ["run_spark", "partition_spark", "fits_driver", "result_figures", "MODES", "BYTES_PER_EDGE"]
+__all__ = ["run_spark", "partition_spark", "fits_driver", "MODES", "BYTES_PER_EDGE"]
 
 MODES = ("distributed", "full")
 
@@ -142,7 +140,7 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
     ParameterError
         Bad ``k``, ε, options, or a resume with other options.
     """
-    from partition.partitioner import DEFAULT_REFINE, STEP_OPTIONS, _resolve_starts
+    from partition.partitioner import STEP_OPTIONS
     from partition.spark.affinity import edge_affinity_df
     from partition.spark.checkpoint import Checkpoints
     from partition.spark.hierarchy import COLLECT_EDGES, build_hierarchy_df
@@ -239,9 +237,9 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
             elif step == "swaps":
                 parts = spark_swaps(spark, sg, parts, rule, nweights, progress=progress, blocks=blocks("cut"))
             else:  # not unit based: on the driver with the in-memory step
-                from partition.partitioner import _refine_step
+                from partition.partitioner import refine_step
 
-                parts = _refine_step(step, graph(), order, parts, k, rule, h, seed)
+                parts = refine_step(step, graph(), order, parts, k, rule, h, seed)
             parts = np.asarray(parts, dtype=np.int64)
             ck.save(key, {"parts": parts})
             stage(f"{name}: {step}", t, where="spark" if step in UNIT_STEPS else "driver")
@@ -299,86 +297,6 @@ def _full_on_driver(g, sg, k, eps, seed, affinity, linkage, hub_cap, rule, nw_on
     return parts, np.asarray(res.order, dtype=np.int64), report
 
 
-def result_figures(spark, sg, parts, k):
-    """Cut and balance figures of a partition, with the names of :func:`partition.score.score`.
-
-    ``cut_edges`` (edges whose ends are on different shards), ``cut_weight``
-    and ``total_edge_weight`` (sums of the input weights, 1 per edge when
-    unweighted), ``cut_fraction`` (their ratio), ``shard_weights`` and
-    ``imbalance`` (heaviest shard over the mean, minus one). One aggregation
-    over the edges in Spark; the shards are an O(n) driver array.
-    """
-    from pyspark.sql import functions as F
-
-    from partition.spark.io import node_weight_array
-
-    parts = np.asarray(parts, dtype=np.int64)
-    sh = spark.createDataFrame(pd.DataFrame({"node": np.arange(parts.shape[0], dtype=np.int64), "shard": parts}))
-    e = (sg.edges.join(sh.withColumnRenamed("node", "u").withColumnRenamed("shard", "su"), "u")
-                 .join(sh.withColumnRenamed("node", "v").withColumnRenamed("shard", "sv"), "v"))
-    cut = F.col("su") != F.col("sv")
-    row = e.agg(F.sum(F.when(cut, 1).otherwise(0)).alias("ce"), F.sum(F.when(cut, F.col("w")).otherwise(0.0)).alias("cw"),
-                F.sum("w").alias("tw")).collect()[0]
-    nweights = node_weight_array(sg)
-    loads = np.bincount(parts, weights=None if nweights is None else nweights, minlength=k).astype(np.int64)
-    total_nw = int(loads.sum())
-    cw, tw = float(row["cw"] or 0.0), float(row["tw"] or 0.0)
-    return {"shards": int(k), "nodes": sg.n, "edges": sg.m, "cut_edges": int(row["ce"] or 0), "cut_weight": cw,
-            "total_edge_weight": tw, "cut_fraction": cw / tw if tw > 0 else 0.0, "total_node_weight": total_nw,
-            "shard_weights": loads.tolist(),
-            "imbalance": float(loads.max() / (total_nw / k) - 1.0) if total_nw else 0.0}
-
-
-def write_assignment(spark, sg, parts, output, fmt="parquet"):
-    """Write ``node, shard`` rows (user ids) to ``output`` (a folder) atomically: temporary folder, then rename.
-
-    Parameters
-    ----------
-    spark : SparkSession
-    sg : partition.spark.io.SparkGraph
-    parts : ndarray of int64
-    output : str or path-like
-    fmt : {"parquet", "csv"}
-
-    Raises
-    ------
-    ParameterError
-        For an unknown format.
-    """
-    if fmt not in ("parquet", "csv"):
-        raise ParameterError(f"output format must be parquet or csv, got {fmt!r}")
-    sh = spark.createDataFrame(pd.DataFrame({"node": np.arange(len(parts), dtype=np.int64),
-                                             "shard": np.asarray(parts, dtype=np.int64)}))
-    # the dense index is internal; the file speaks the user's ids, in the column
-    # names every node→shard file of Shardline uses
-    write_folder(sg.nodes.join(sh, "node").orderBy("node").selectExpr("id as node", "shard"), output, fmt)
-
-
-def write_folder(table, output, fmt="parquet"):
-    """Write a DataFrame to the folder ``output`` atomically: a hidden temporary sibling, then a rename.
-
-    ``fmt`` is ``"parquet"`` (part files as Spark writes them) or ``"csv"`` (one
-    part with a header row). An existing folder is moved aside, the new one
-    renamed in, then the old one removed.
-    """
-    out = Path(output)
-    out.parent.mkdir(parents=True, exist_ok=True)
-    tmp = out.with_name(f".{out.name}.tmp-{os.getpid()}")
-    if tmp.exists():
-        shutil.rmtree(tmp)
-    if fmt == "parquet":
-        table.write.parquet(str(tmp))
-    else:
-        table.coalesce(1).write.option("header", True).csv(str(tmp))
-    old = None
-    if out.exists():
-        old = out.with_name(f".{out.name}.old-{os.getpid()}")
-        out.rename(old)
-    tmp.rename(out)
-    if old is not None:
-        shutil.rmtree(old, ignore_errors=True)
-
-
 def run_spark(graph_path, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum", hub_cap=DEFAULT_HUB_CAP,
               mode="distributed", fmt="auto", weighted=False, node_weights=None, allow_isolated=False,
               master=None, output=None, output_format="parquet", report=None, work_dir=None, resume=False,
@@ -400,7 +318,7 @@ def run_spark(graph_path, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum",
         Folder for the ``id, shard`` table (written atomically).
     order_output : str or None
         Folder for the ``node, position`` table of the linear order
-        (:func:`partition.spark.recut.write_order`), the input of a later re-cut.
+        (:func:`partition.spark.tables.write_order`), the input of a later re-cut.
     output_format : {"parquet", "csv"}
     report : str or None
         JSON report path (written atomically).
@@ -428,8 +346,10 @@ def run_spark(graph_path, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum",
         Bad options; ``resume`` without ``work_dir``.
     """
     from partition.placement.export import file_sha256
-    from partition.spark.io import node_weight_array, read_graph_df
+    from partition.spark.figures import result_figures
+    from partition.spark.io import read_graph_df
     from partition.spark.session import describe, spark_session
+    from partition.spark.tables import write_assignment, write_order
 
     if resume and work_dir is None:
         raise ParameterError("resume needs the work directory of the interrupted run")
@@ -461,8 +381,6 @@ def run_spark(graph_path, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum",
         write_assignment(spark, sg, parts, output, output_format)
         rep["output"] = str(output)
     if order_output is not None:
-        from partition.spark.recut import write_order
-
         describe(spark, "write order")
         write_order(spark, sg, order, order_output)
     rep["outputs"] = {"assignment": None if output is None else str(output), "report": report,

@@ -23,7 +23,8 @@ import os
 import shutil
 
 from partition.errors import InputError
-from partition.placement.export import _EXT, _data_files, check_export, file_sha256, manifest_head, publish_export
+from partition.placement.export import (EXTENSIONS, check_export, data_files, file_sha256, manifest_head,
+                                        publish_export)
 
 __all__ = ["export_run_spark"]
 
@@ -65,7 +66,7 @@ def _empty_table(spark, schema, path, fmt):
 
 def _entry(folder, rel, rows, shard=None):
     path = os.path.join(folder, *rel.split("/"))
-    size = sum(os.path.getsize(os.path.join(path, f)) for f in _data_files(path))
+    size = sum(os.path.getsize(os.path.join(path, f)) for f in data_files(path))
     return {"path": rel, "sha256": file_sha256(path), "bytes": size, "rows": int(rows), "shard": shard}
 
 
@@ -118,7 +119,7 @@ def export_run_spark(spark, assignment, out_dir, fmt="parquet", report=None, gra
         raise InputError(assignment, f"holds {n} nodes but the report's graph has {nodes}")
     manifest = manifest_head(rep, fmt, graph_path, graph_sum, assignment, report_path, created)
     manifest["tables"] = "spark-folders"
-    ext = _EXT[fmt]
+    ext = EXTENSIONS[fmt]
     width = max(5, len(str(k - 1)))
 
     def fill(tmp):

@@ -2,8 +2,9 @@
 
 A Spark run can keep its linear order (``shardline run --engine spark
 --order-output ORDER``: a ``node, position`` Parquet folder or CSV written by
-:func:`write_order`). :func:`recut_spark` then cuts that order into a new
-number of shards exactly as :func:`partition.placement.recut.recut` does
+:func:`partition.spark.tables.write_order`). :func:`recut_spark` then cuts
+that order into a new number of shards exactly as
+:func:`partition.placement.recut.recut` does
 without a current placement: the line cut of equal weight
 (:func:`partition.cut.line_cut`, on the driver: O(n) arrays), the window DP
 over the boundaries and pairwise Fiduccia–Mattheyses rounds with the same
@@ -27,27 +28,12 @@ from __future__ import annotations
 import dataclasses
 
 import numpy as np
-import pandas as pd
 
 from partition.balance import balance_rule
 from partition.cut import line_cut
 from partition.errors import InputError, ParameterError, check_imbalance, check_parts
 
-__all__ = ["read_order_df", "write_order", "recut_spark"]
-
-
-def write_order(spark, sg, order, output):
-    """Write ``node, position`` rows (user ids, position order) to ``output`` atomically.
-
-    Parquet folder unless the name ends in ``.csv`` (then a folder of CSV
-    parts with a header), written to a hidden temporary sibling and renamed.
-    """
-    from partition.spark.engine import write_folder
-
-    order = np.asarray(order, dtype=np.int64)
-    pos = spark.createDataFrame(pd.DataFrame({"node": order, "position": np.arange(order.size, dtype=np.int64)}))
-    table = sg.nodes.join(pos, "node").orderBy("position").selectExpr("id as node", "position")
-    write_folder(table, output, "csv" if str(output).lower().endswith(".csv") else "parquet")
+__all__ = ["read_order_df", "recut_spark"]
 
 
 def read_order_df(spark, path, sg):
@@ -124,7 +110,7 @@ def recut_spark(spark, sg, order, k, eps=0.0, seed=0, refine=True, window=None, 
     """
     from partition.cut import check_order
     from partition.placement.recut import band_floor
-    from partition.spark.engine import result_figures
+    from partition.spark.figures import result_figures
     from partition.spark.io import node_weight_array
     from partition.spark.refine import spark_fm, spark_window
 

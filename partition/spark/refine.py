@@ -4,7 +4,7 @@ Each step runs the same rounds as its in-memory driver and feeds the same
 numba kernels the same arrays, so the result is identical:
 
 ``window`` (:func:`partition.refine.window_dp.refine_window`)
-    Every round frees the boundaries of :func:`~partition.refine.window_dp._free_mask`;
+    Every round frees the boundaries of :func:`~partition.refine.window_dp.free_mask`;
     each chain of free boundaries is a unit: a task gets the line edges with
     both ends between the chain's fixed neighbours (one shuffle of the edge blocks) and runs
     :func:`~partition.refine.window_dp.window_dp_round` on that stretch of the
@@ -38,7 +38,7 @@ from partition.refine.fm import fm_pair
 from partition.refine.schedule import matched_pairs
 from partition.refine.swaps import swap_pair
 from partition.refine.units import settle
-from partition.refine.window_dp import _free_mask, default_window, window_dp_round
+from partition.refine.window_dp import default_window, free_mask, window_dp_round
 from partition.rules import AFFINITY_SCALE
 from partition.spark.blocks import group_chunks
 from partition.spark.session import describe
@@ -412,7 +412,7 @@ def spark_window(spark, sg, order, parts, rule, node_weights, w=None, max_rounds
     try:
         for r in range(max_rounds if k > 1 else 0):
             describe(spark, f"refine window: round {r + 1}")
-            free = _free_mask(k, r, 1)
+            free = free_mask(k, r, 1)
             full = np.concatenate(([0], b, [n]))
             fixed = np.concatenate(([0], np.flatnonzero(~free) + 1, [k]))
             fpos = full[fixed]
