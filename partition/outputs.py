@@ -39,7 +39,8 @@ _TABLE_EXT = (".csv", ".tsv", ".parquet", ".pq", ".csv.gz", ".tsv.gz")
 TABLE = Kind("table", _TABLE_EXT)
 """A table: CSV/TSV (optionally gzip-compressed) or Parquet, chosen by the name."""
 TABLE_OR_FOLDER = Kind("table or Parquet folder", _TABLE_EXT, folder_if=(".parquet", ".pq"))
-"""A table, or (Spark engine) a Parquet folder of that name, which may already exist."""
+"""A table, or (Spark engine) a Parquet folder of that name, which may already exist; a name without an
+extension is a Parquet folder (the in-memory engine asks for a table name, see ``shardline run``)."""
 JSON = Kind("JSON", (".json",))
 REPORT = Kind("JSON report", (".json",), beside="output")
 """The JSON report a command always writes: ``--report``, or ``OUTPUT.report.json`` when not given."""
@@ -125,8 +126,9 @@ def check_outputs(args, extra=()):
                 raise ParameterError(f"{label} {path} is an existing file; this output is a folder")
             continue
         lower = path.lower()
-        if os.path.isdir(path) and not (kind.folder_if and lower.endswith(kind.folder_if)):
+        bare = bool(kind.folder_if) and "." not in os.path.basename(path.rstrip("/"))  # a Spark folder: out/shards
+        if os.path.isdir(path) and not (kind.folder_if and (lower.endswith(kind.folder_if) or bare)):
             raise ParameterError(f"{label} {path} is an existing directory; name a file to write")
-        if kind.extensions is not None and not lower.endswith(kind.extensions):
+        if kind.extensions is not None and not lower.endswith(kind.extensions) and not bare:
             raise ParameterError(f"{label} {path}: the name must end in {', '.join(kind.extensions)} "
                                  "(the format is chosen by the name)")

@@ -143,7 +143,8 @@ class _Clock:
         return row
 
 
-def _resolve_starts(starts, n, m):
+def resolve_starts(starts, n, m):
+    """The starts of a plan as a tuple: ``"auto"`` by the effort rule on ``n`` and ``m``, else the list given, checked."""
     if starts in (None, "auto"):
         pool = [x for x in AUTO_STARTS if x != "spectral" or n <= SPECTRAL_NODE_LIMIT]
         count = max(1, min(len(pool), int(STEP_OPTIONS["pick"]["start_edges"]) // max(int(m), 1)))
@@ -161,7 +162,8 @@ def _resolve_starts(starts, n, m):
     return tuple(starts)
 
 
-def _resolve_refine(refine):
+def resolve_refine(refine):
+    """The refinement steps of a plan as a tuple: ``"default"``, ``"none"`` or a comma list, checked."""
     if refine in (None, "default"):
         return DEFAULT_REFINE
     if refine == "none":
@@ -235,8 +237,8 @@ def partition_graph(
         raise ParameterError(f"unknown linkage {linkage!r}; expected one of {', '.join(LINKAGES)}")
     if affinity == "weights" and not graph.weighted:
         raise ParameterError("affinity 'weights' needs a weighted graph (--weighted or --weight-column)")
-    starts = _resolve_starts(starts, graph.n, graph.m)
-    steps = _resolve_refine(refine)
+    starts = resolve_starts(starts, graph.n, graph.m)
+    steps = resolve_refine(refine)
     rule = balance_rule(graph.node_weights, k, eps, n_nodes=graph.n)
     clock = _Clock(progress)
     if progress is not None:  # the plan, for progress bars: stage entries in the order they finish

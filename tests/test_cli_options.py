@@ -161,3 +161,18 @@ def test_bad_shard_count_same_prefix_and_status_everywhere(files, capsys, argv):
     assert status == 2
     assert err.startswith("shardline: error: k must be at least 1, got 0"), err
     assert sorted(p.name for p in files["dir"].iterdir()) == ["a.csv", "arr.txt", "g.txt", "keys.txt", "order.csv"]
+
+
+def test_spark_job_takes_every_option_of_run():
+    """jobs/spark_partition.py is `shardline run` with the Spark engine: the same options in its --help."""
+    import re
+    from pathlib import Path
+
+    job = Path(__file__).resolve().parents[1] / "jobs" / "spark_partition.py"
+    helps = []
+    for cmd in ([sys.executable, str(job), "--help"], [sys.executable, "-m", "partition.cli", "run", "--help"]):
+        out = subprocess.run(cmd, capture_output=True, text=True, timeout=120)
+        assert out.returncode == 0, out.stderr
+        helps.append(set(re.findall(r"(?<![\w-])--[a-z][a-z-]+", out.stdout)))
+    assert helps[0] == helps[1]
+    assert {"--starts", "--refine", "--order-output", "--collect-edges", "--mode", "--resume"} <= helps[0]

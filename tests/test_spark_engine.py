@@ -502,3 +502,26 @@ def test_random_awkward_id_sets_come_back_alike_on_both_engines(spark, tmp_path_
         assert np.array_equal(parts, mem.parts)
 
     check()
+
+
+def test_spark_job_runs_the_starts_and_steps_asked_for(mixed_graph, tmp_path):
+    """spark-submit's script with --starts/--refine/--order-output gives the in-memory plan's assignment."""
+    import pyarrow.parquet as pq
+
+    env = dict(os.environ, PYSPARK_PYTHON=sys.executable, PYSPARK_DRIVER_PYTHON=sys.executable)
+    out, order = tmp_path / "shards", tmp_path / "order.parquet"
+    cmd = [sys.executable, str(ROOT / "jobs" / "spark_partition.py"), mixed_graph, "-k", "3", "--seed", "4",
+           "--starts", "hierarchy,spectral", "--refine", "window,fm", "-o", str(out), "--order-output", str(order),
+           "--quiet"]
+    done = subprocess.run(cmd, env=env, capture_output=True, text=True, timeout=900)
+    assert done.returncode == 0, done.stderr[-2000:]
+    g = read_graph(mixed_graph)
+    ref = partition_graph(g, 3, 0.0, 4, starts=("hierarchy", "spectral"), refine=("window", "fm"))
+    table = pq.read_table(out).to_pandas().sort_values("node")
+    assert np.array_equal(table["node"].to_numpy(), g.ids)
+    assert np.array_equal(table["shard"].to_numpy(), ref.parts)
+    rep = json.loads(Path(str(out) + ".report.json").read_text())
+    assert rep["options"]["starts"] == ["hierarchy", "spectral"] and rep["options"]["refine"] == ["window", "fm"]
+    assert pq.read_table(order).num_rows == g.n
+    bad = subprocess.run(cmd[:-1] + ["--starts", "degree"], env=env, capture_output=True, text=True, timeout=600)
+    assert bad.returncode == 2 and "distributed mode takes the starts" in bad.stderr

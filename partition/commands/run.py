@@ -54,6 +54,9 @@ def add_arguments(parser):
                             "driver after a distributed read)")
     spark.add_argument("--work-dir", help="Spark engine: checkpoint folder (needed for --resume)")
     spark.add_argument("--resume", action="store_true", help="Spark engine: continue an interrupted run")
+    spark.add_argument("--collect-edges", type=int, metavar="M",
+                       help="Spark engine: finish the hierarchy on the driver once at most M coarse edges are left "
+                            "(default: the engine's budget)")
     add_shared(parser, "json", "quiet")
 
 
@@ -62,6 +65,7 @@ def run(args) -> int:
     from partition.partitioner import partition_graph
     from partition.score import score
     from partition.placement.export import file_sha256
+    from partition.outputs import TABLE
     from partition.tables import hierarchy_table, order_table, write_table
 
     from partition.errors import check_move_cost
@@ -87,6 +91,11 @@ def run(args) -> int:
             progress.line("engine auto: Spark (the graph is too large for this machine's memory)")
     if engine == "spark":
         return _run_spark(args, k, report_path, progress)
+    for flag, path in (("-o", args.output), ("--order-output", args.order_output)):
+        if path is not None and not str(path).lower().endswith(TABLE.extensions):
+            raise ParameterError(f"{flag} {path}: the in-memory engine writes a table file, so the name must end "
+                                 f"in {', '.join(TABLE.extensions)} (a name without one is a Parquet folder of the "
+                                 "Spark engine)")
     t0 = time.perf_counter()
     graph = graph_from_args(args)
     read_seconds = time.perf_counter() - t0
@@ -162,7 +171,8 @@ def _run_spark(args, k, report_path, progress):
                         report=report_path, work_dir=args.work_dir, resume=args.resume, progress=progress,
                         source_column=args.source_column, target_column=args.target_column,
                         weight_column=args.weight_column, header=args.header, delimiter=args.delimiter,
-                        order_output=args.order_output)
+                        order_output=args.order_output, starts=args.starts, refine=args.refine,
+                        collect_edges=args.collect_edges)
     finally:
         if progress:
             progress.close()

@@ -104,8 +104,13 @@ class _Blocks:
         self.made.clear()
 
 
+DISTRIBUTED_STARTS = ("hierarchy", "spectral")
+"""Starts the distributed mode computes: the hierarchy's order in Spark, the spectral order on the driver."""
+
+
 def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum", hub_cap=DEFAULT_HUB_CAP,
-                    mode="distributed", work_dir=None, resume=False, collect_edges=None, progress=None):
+                    mode="distributed", work_dir=None, resume=False, collect_edges=None, progress=None,
+                    starts="auto", refine="default"):
     """Partition a :class:`~partition.spark.io.SparkGraph` (see the module docstring).
 
     Parameters
@@ -128,6 +133,14 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
         (default :data:`partition.spark.hierarchy.COLLECT_EDGES`).
     progress : callable or None
         Called with one dict per stage and per hierarchy round.
+
+    starts, refine : str or tuple
+        As :func:`partition.partitioner.partition_graph`. ``mode="full"``
+        runs them on the driver as given; the distributed mode's ``"auto"``
+        is the hierarchy start and ``"default"`` the unit steps (window,
+        fm, swaps) as Spark tasks; it takes the starts hierarchy and
+        spectral, and any refinement steps (those that are not unit based
+        run on the driver, as the stage rows say).
 
     Returns
     -------
@@ -177,7 +190,7 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
         if progress is not None:
             progress(row)
 
-    starts, steps = ("hierarchy",), UNIT_STEPS
+    starts, steps = _distributed_plan(starts, refine) if mode == "distributed" else (starts, refine)
     nweights = node_weight_array(sg)
     rule = balance_rule(nweights, k, eps, n_nodes=sg.n)
     nw_ones = np.ones(sg.n, dtype=np.int64) if nweights is None else nweights
@@ -191,7 +204,8 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
     if progress is not None and mode == "distributed":  # the plan, for progress bars
         progress({"plan": ["affinity", "hierarchy", "orders", *steps]})
     if mode == "full":
-        return _full_on_driver(graph(), sg, k, eps, seed, affinity, linkage, hub_cap, rule, nw_ones, rows, stage)
+        return _full_on_driver(graph(), sg, k, eps, seed, affinity, linkage, hub_cap, rule, nw_ones, rows, stage,
+                               starts, steps)
     t = time.perf_counter()
     describe(spark, "affinity")
     aff = edge_affinity_df(sg, affinity, hub_cap=hub_cap)
@@ -272,12 +286,30 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
     return parts, order, report
 
 
-def _full_on_driver(g, sg, k, eps, seed, affinity, linkage, hub_cap, rule, nw_ones, rows, stage):
-    """The full default plan on the driver (the graph is collected): :func:`partition_graph` itself."""
+def _distributed_plan(starts, refine):
+    """Starts and steps of the distributed mode (see :func:`partition_spark`)."""
+    from partition.partitioner import resolve_refine
+    from partition.spark.refine import UNIT_STEPS
+
+    if starts in (None, "auto"):
+        starts = ("hierarchy",)
+    elif isinstance(starts, str):
+        starts = tuple(s.strip() for s in starts.split(",") if s.strip())
+    if not starts or any(s not in DISTRIBUTED_STARTS for s in starts) or len(set(starts)) != len(starts):
+        raise ParameterError(f"the distributed mode takes the starts {', '.join(DISTRIBUTED_STARTS)} (once each), "
+                             f"got {starts!r}; --mode full runs every start on the driver")
+    steps = UNIT_STEPS if refine in (None, "default") else resolve_refine(refine)
+    return tuple(starts), tuple(steps)
+
+
+def _full_on_driver(g, sg, k, eps, seed, affinity, linkage, hub_cap, rule, nw_ones, rows, stage, starts="auto",
+                    refine="default"):
+    """The full plan on the driver (the graph is collected): :func:`partition_graph` itself."""
     from partition.partitioner import partition_graph
 
     t = time.perf_counter()
-    res = partition_graph(g, k, eps, seed, affinity=affinity, linkage=linkage, hub_cap=hub_cap)
+    res = partition_graph(g, k, eps, seed, affinity=affinity, linkage=linkage, hub_cap=hub_cap, starts=starts,
+                          refine=refine)
     stage("full plan on the driver", t, where="driver")
     parts = np.asarray(res.parts, dtype=np.int64)
     loads = np.bincount(parts, weights=nw_ones, minlength=k)
@@ -301,14 +333,15 @@ def run_spark(graph_path, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum",
               mode="distributed", fmt="auto", weighted=False, node_weights=None, allow_isolated=False,
               master=None, output=None, output_format="parquet", report=None, work_dir=None, resume=False,
               collect_edges=None, progress=None, spark=None, source_column=None, target_column=None,
-              weight_column=None, header=None, delimiter=None, order_output=None):
+              weight_column=None, header=None, delimiter=None, order_output=None, starts="auto",
+              refine="default"):
     """Run the Spark engine end to end on an edge list; returns the report dict.
 
     Parameters
     ----------
     graph_path : str
         Edge list (text or Parquet; any path Spark reads).
-    k, eps, seed, affinity, linkage, hub_cap, mode
+    k, eps, seed, affinity, linkage, hub_cap, mode, starts, refine
         As :func:`partition_spark`.
     fmt, weighted, node_weights, allow_isolated, source_column, target_column, weight_column, header, delimiter
         Input options (:func:`partition.spark.io.read_graph_df`).
@@ -365,7 +398,7 @@ def run_spark(graph_path, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum",
         progress(read_row)
     parts, order, rep = partition_spark(spark, sg, k, eps, seed, affinity, linkage, hub_cap, mode,
                                         work_dir=work_dir, resume=resume, collect_edges=collect_edges,
-                                        progress=progress)
+                                        progress=progress, starts=starts, refine=refine)
     rep["stages"].insert(0, read_row)
     rep["seconds"] = round(rep["seconds"] + read_row["seconds"], 4)
     describe(spark, "result figures")
