@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import os
 import sys
 import time
 
@@ -81,8 +82,6 @@ def run(args) -> int:
     progress = progress_for(args.quiet)
     engine = args.engine
     if engine == "auto":
-        import os
-
         from partition.sizing import fits_driver
 
         # a missing local file goes to the in-memory reader, which names it in its error
@@ -92,6 +91,8 @@ def run(args) -> int:
     if engine == "spark":
         return _run_spark(args, k, report_path, progress)
     for flag, path in (("-o", args.output), ("--order-output", args.order_output)):
+        if path is not None and os.path.isdir(path):
+            raise ParameterError(f"{flag} {path} is an existing directory; the in-memory engine writes a table file")
         if path is not None and not str(path).lower().endswith(TABLE.extensions):
             raise ParameterError(f"{flag} {path}: the in-memory engine writes a table file, so the name must end "
                                  f"in {', '.join(TABLE.extensions)} (a name without one is a Parquet folder of the "
