@@ -274,7 +274,14 @@ def _refuse_header(path, fields, line):
 # ----------------------------------------------------------------------------
 # text
 # ----------------------------------------------------------------------------
-def _read_bytes(path):
+def read_bytes(path):
+    """The bytes of a text input: gzip or bzip2 decompressed by content, line ends made ``\\n``.
+
+    Raises
+    ------
+    InputError
+        The file is missing, a folder, unreadable or a broken compressed file.
+    """
     try:
         with open(path, "rb") as fh:
             raw = fh.read()
@@ -298,7 +305,7 @@ def _read_bytes(path):
 
 def _read_text(path, ncols, delimiter, header):
     """Parse a text table into ``ncols`` string columns; returns (columns, row_to_line)."""
-    raw = _read_bytes(path)
+    raw = read_bytes(path)
     data = _COMMENT_LINE.sub(b"", raw) if (b"#" in raw or b"%" in raw) else raw
     row_to_line = _RowLines(raw)
     if not data.strip():
@@ -435,7 +442,7 @@ def _first_lines(data, count=5):
 
 
 def _read_headed(path, wanted, weighted, delim, kind, header, ncols=3):
-    raw = _read_bytes(path)
+    raw = read_bytes(path)
     data = raw[_leading_comments_end(raw):]  # comments only above the header: below it, '#x' may be an id
     if not data.strip():
         raise InputError(path, "the file is empty")

@@ -27,8 +27,6 @@ raises :class:`~partition.errors.InputError` naming the file and line.
 
 from __future__ import annotations
 
-import bz2
-import gzip
 import io
 import json
 import os
@@ -37,6 +35,7 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
+from partition.edgelist import read_bytes
 from partition.errors import InputError, ParameterError
 from partition.workload.keys import keys_from_column, keys_from_strings
 from partition.workload.log import assemble_log
@@ -99,28 +98,6 @@ def read_log(path, fmt="auto", request_column=None, key_column=None, time_column
     return _read_long_text(path, request_column, key_column, time_column, delim)
 
 
-def _read_bytes(path):
-    try:
-        with open(path, "rb") as fh:
-            raw = fh.read()
-    except FileNotFoundError:
-        raise InputError(path, "no such file") from None
-    except IsADirectoryError:
-        raise InputError(path, "is a directory, not a file") from None
-    except OSError as exc:
-        raise InputError(path, f"cannot be read: {exc.strerror or exc}") from None
-    try:
-        if raw[:2] == b"\x1f\x8b":
-            raw = gzip.decompress(raw)
-        elif raw[:3] == b"BZh":
-            raw = bz2.decompress(raw)
-    except (OSError, EOFError, ValueError) as exc:
-        raise InputError(path, f"is not a valid compressed file: {exc}") from None
-    if b"\r" in raw:
-        raw = raw.replace(b"\r\n", b"\n").replace(b"\r", b"\n")
-    return raw
-
-
 def _utf8_tokens(tokens, line_of_token, path):
     arr = pa.array(tokens, pa.large_binary())
     try:
@@ -136,7 +113,7 @@ def _utf8_tokens(tokens, line_of_token, path):
 
 # --------------------------------------------------------------------------- basket
 def _read_basket(path):
-    raw = _read_bytes(path)
+    raw = read_bytes(path)
     lines = raw.split(b"\n")
     sizes = np.fromiter((len(x.split()) for x in lines), dtype=np.int64, count=len(lines))
     keep = np.flatnonzero(sizes > 0)
@@ -166,7 +143,7 @@ def _pick(path, names, wanted, default_index, what):
 def _read_long_text(path, request_column, key_column, time_column, delim):
     import pyarrow.csv as pacsv
 
-    raw = _read_bytes(path)
+    raw = read_bytes(path)
     first = raw.split(b"\n", 1)[0]
     names = [s.strip() for s in first.decode("utf-8", "replace").split(delim)]
     if not raw.strip():
@@ -324,7 +301,7 @@ def _read_parquet(path, request_column, key_column, time_column):
 
 
 def _read_jsonl(path, key_column):
-    raw = _read_bytes(path)
+    raw = read_bytes(path)
     field = key_column or "keys"
     key_lists, times, lines = [], [], []
     for lineno, line in enumerate(raw.split(b"\n"), start=1):
