@@ -525,3 +525,26 @@ def test_spark_job_runs_the_starts_and_steps_asked_for(mixed_graph, tmp_path):
     assert pq.read_table(order).num_rows == g.n
     bad = subprocess.run(cmd[:-1] + ["--starts", "degree"], env=env, capture_output=True, text=True, timeout=600)
     assert bad.returncode == 2 and "distributed mode takes the starts" in bad.stderr
+
+
+def test_spark_report_has_the_in_memory_figures_and_summary(spark, mixed_graph, tmp_path, capsys):
+    """One report schema: the Spark run's `result` holds partition.score's figures for its assignment."""
+    from partition.cli import main
+    from partition.score import score
+
+    out = tmp_path / "shards.parquet"
+    assert main(["run", mixed_graph, "-k", "3", "--seed", "2", "--engine", "spark", "-o", str(out)]) == 0
+    table = capsys.readouterr().out
+    rep = json.loads(Path(str(out) + ".report.json").read_text())
+    g = read_graph(mixed_graph)
+    from partition.assignment import read_assignment
+
+    want = score(g, read_assignment(str(out), g), k=3).to_dict()
+    for key in ("cut_edges", "cut_weight", "communication_volume", "boundary_nodes", "shard_weights"):
+        assert rep["result"][key] == want[key], key
+    for key in ("cut_fraction", "imbalance", "fanout"):
+        assert rep["result"][key] == pytest.approx(want[key], abs=1e-12), key
+    # the summary table is the in-memory one, with the engine in its title
+    for row in ("cut edges", "cut fraction", "communication volume", "fanout", "start chosen", "raw line cut"):
+        assert row in table, row
+    assert "(Spark engine" in table

@@ -180,44 +180,20 @@ def _run_spark(args, k, report_path, progress):
     if args.json:
         print(json.dumps(rep, indent=2, sort_keys=True, default=str))
     elif not args.quiet:
-        _spark_summary(rep, args.graph)
+        _summary(rep)
     return 0
 
 
-def _spark_summary(rep, graph):
-    from rich.console import Console
-    from rich.table import Table
-
-    table = Table(title=f"{graph} → {rep['k']} shards (Spark engine, {rep['mode']} mode)", show_header=True)
-    table.add_column("figure")
-    table.add_column("value", justify="right")
-    bal = rep["balance"]
-    cut = f"{rep['cut']:,}" + (f" ({rep['cut_fraction']:.4f} of the edges)" if rep.get("cut_fraction") is not None
-                               else " (edge weight)")
-    rows = [
-        ("nodes / edges", f"{rep['graph']['nodes']:,} / {rep['graph']['edges']:,}"),
-        ("cut", cut),
-        ("largest shard / cap", f"{bal['max_load']:,} / {bal['cap']:,} ({'balanced' if bal['balanced'] else 'OVER'})"),
-        ("hierarchy rounds", str(rep["hierarchy"]["rounds"])),
-        ("seconds", f"{rep['seconds']:.1f}"),
-        ("written", f"{rep.get('output')} and its report"),
-    ]
-    starts = rep.get("starts") or []
-    if starts and "raw_cut" in starts[0]:
-        rows.insert(2, ("raw line cut → final", ", ".join(f"{s['start']}: {s['raw_cut']:,} → {s['cut']:,}"
-                                                         for s in starts)))
-    for a, b in rows:
-        table.add_row(a, b)
-    Console().print(table)
-    sys.stdout.flush()
-
-
 def _summary(report):
+    """The run's summary table, the same for both engines (one report schema: ``input``, ``result``, ``starts``)."""
     from rich.console import Console
     from rich.table import Table
 
     res = report["result"]
-    table = Table(title=f"{report['input']['graph']} → {report['k']} shards", show_header=True)
+    title = f"{report['input']['graph']} → {report['k']} shards"
+    if report.get("engine") == "spark":
+        title += f" (Spark engine, {report['mode']} mode)"
+    table = Table(title=title, show_header=True)
     table.add_column("figure")
     table.add_column("value", justify="right")
     rows = [
@@ -231,7 +207,7 @@ def _summary(report):
         ("raw line cut → final", ", ".join(f"{s['start']}: {s['raw_cut_fraction']:.4f} → {s['cut_fraction']:.4f}"
                                            for s in report["starts"])),
         ("hierarchy rounds", str(report["hierarchy"]["rounds"])),
-        ("seconds (partition)", f"{report['seconds']:.2f}"),
+        ("seconds", f"{report['seconds']:.2f}"),
         ("written", report["outputs"]["assignment"]),
     ]
     if report.get("stability"):

@@ -409,6 +409,10 @@ def run_spark(graph_path, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum",
                     # a checksum where the driver can read the file (local disk or shared mount)
                     "sha256": file_sha256(graph_path) if os.path.isfile(graph_path) else None}
     rep["result"] = result_figures(spark, sg, parts, k)
+    total = rep["result"]["total_edge_weight"] or 1.0
+    for row in rep.get("starts") or []:  # the in-memory report's start figures, from the weights
+        if "raw_cut_fraction" not in row and "raw_cut" in row:
+            row["raw_cut_fraction"], row["cut_fraction"] = row["raw_cut"] / total, row["cut"] / total
     if output is not None:
         describe(spark, "write")
         write_assignment(spark, sg, parts, output, output_format)

@@ -21,8 +21,10 @@ def result_figures(spark, sg, parts, k):
     ``cut_edges`` (edges whose ends are on different shards), ``cut_weight``
     and ``total_edge_weight`` (sums of the input weights, 1 per edge when
     unweighted), ``cut_fraction`` (their ratio), ``shard_weights`` and
-    ``imbalance`` (heaviest shard over the mean, minus one). One aggregation
-    over the edges in Spark; the shards are an O(n) driver array.
+    ``imbalance`` (heaviest shard over the mean, minus one),
+    ``communication_volume``, ``boundary_nodes`` and ``fanout`` (as
+    :func:`partition.score.score` defines them). Two aggregations over the
+    edges in Spark; the shards are an O(n) driver array.
     """
     from pyspark.sql import functions as F
 
@@ -39,7 +41,15 @@ def result_figures(spark, sg, parts, k):
     loads = np.bincount(parts, weights=None if nweights is None else nweights, minlength=k).astype(np.int64)
     total_nw = int(loads.sum())
     cw, tw = float(row["cw"] or 0.0), float(row["tw"] or 0.0)
+    # communication volume: over nodes, the distinct other shards among the neighbours (partition.score)
+    cross = e.filter(cut)
+    pairs = cross.select(F.col("u").alias("x"), F.col("sv").alias("s")).union(
+        cross.select(F.col("v").alias("x"), F.col("su").alias("s"))).distinct()
+    vb = pairs.agg(F.count("*").alias("vol"), F.countDistinct("x").alias("bn")).collect()[0]
+    volume = int(vb["vol"] or 0)
     return {"shards": int(k), "nodes": sg.n, "edges": sg.m, "cut_edges": int(row["ce"] or 0), "cut_weight": cw,
             "total_edge_weight": tw, "cut_fraction": cw / tw if tw > 0 else 0.0, "total_node_weight": total_nw,
             "shard_weights": loads.tolist(),
-            "imbalance": float(loads.max() / (total_nw / k) - 1.0) if total_nw else 0.0}
+            "imbalance": float(loads.max() / (total_nw / k) - 1.0) if total_nw else 0.0,
+            "communication_volume": volume, "boundary_nodes": int(vb["bn"] or 0),
+            "fanout": 1.0 + volume / sg.n if sg.n else 0.0}
