@@ -52,7 +52,6 @@ def add_arguments(parser):
 def run(args) -> int:
     """Re-cut, write the assignment and the report, print a summary."""
     from partition.assignment import read_assignment, write_assignment
-    from partition.atomic import write_text
     from partition.placement.recut import read_order, recut
     from partition.errors import check_move_cost
     from partition.score import score
@@ -81,12 +80,19 @@ def run(args) -> int:
         "seed": args.seed,
         "options": {"method": "recut", "move_cost": args.move_cost if args.previous else None,
                     "refine": not args.no_refine, "floor": args.floor},
-        "recut": stats,
+        "recut": {key: value for key, value in stats.items() if key != "stability"},
+        "stability": stats.get("stability"),  # where run's report has it
         "result": figures,
         "outputs": {"assignment": str(args.output), "report": str(report_path)},
     }
-    write_assignment(args.output, graph, parts)
-    write_text(report_path, json.dumps(report, indent=2, sort_keys=True) + "\n")
+    from partition.atomic import atomic_paths
+    from partition.placement.export import file_sha256
+
+    with atomic_paths([args.output, report_path]) as tmp:  # both or neither
+        write_assignment(tmp[0], graph, parts)
+        report["outputs"]["sha256"] = {"assignment": file_sha256(tmp[0])}
+        with open(tmp[1], "w", encoding="utf-8") as fh:
+            fh.write(json.dumps(report, indent=2, sort_keys=True) + "\n")
     if args.json:
         print(json.dumps(report, indent=2, sort_keys=True))
         return 0
@@ -161,7 +167,9 @@ def _run_spark(args, k, eps, report_path):
         "outputs": {"assignment": str(args.output), "report": str(report_path)},
     }
     write_assignment(spark, sg, parts, args.output, "csv" if str(args.output).lower().endswith(".csv") else "parquet")
-    write_text(report_path, json.dumps(report, indent=2, sort_keys=True) + "\n")
+    if os.path.exists(args.output):  # the driver can read it: record its checksum, as the in-memory path does
+        report["outputs"]["sha256"] = {"assignment": file_sha256(args.output)}
+    write_text(report_path, json.dumps(report, indent=2, sort_keys=True) + "\n")  # after the output it describes
     spark.stop()
     if args.json:
         print(json.dumps(report, indent=2, sort_keys=True))
