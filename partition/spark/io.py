@@ -196,7 +196,8 @@ def _csv_fields(src, delim, header, wanted, weighted, kind):
     if got is not None:
         raise src.error(f"malformed row: expected {width} fields", got)
     schema = ", ".join(f"`c{i}` string" for i in range(width))
-    parsed = body.select(F.from_csv("line", schema, {"sep": delim}).alias("r"), "key")
+    # RFC 4180: a quote inside a quoted field is doubled (Spark's CSV escape is a backslash unless told)
+    parsed = body.select(F.from_csv("line", schema, {"sep": delim, "escape": '"'}).alias("r"), "key")
     idx = [names.index(c) for c in chosen]
     cols = [F.col(f"r.c{idx[0]}").alias("s"), F.col(f"r.c{idx[1]}").alias("d"), "key"]
     if weighted:
