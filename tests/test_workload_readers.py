@@ -114,3 +114,13 @@ def test_retail_baskets_counts():
     log = read_log(path)
     assert (log.n_requests, log.n_keys, int(log.sizes().sum())) == (88162, 16470, 908577)
     assert log.sizes().max() == 76 and np.median(log.sizes()) == 8  # basket sizes 1–76, median 8 (catalog)
+
+
+def test_minus_zero_and_zero_are_two_keys(tmp_path):
+    # the reference: Python's int() and str() — str(int("-0")) == "0" != "-0", so "-0" is not canonical
+    from partition.workload.readers import read_log
+
+    p = tmp_path / "z.dat"
+    p.write_text("-0 0\n0 5\n")
+    log = read_log(p)
+    assert sorted(log.keys.tolist()) == ["-0", "0", "5"]
