@@ -49,7 +49,7 @@ import numba
 import numpy as np
 
 from partition.errors import ParameterError
-from partition.rules import AFFINITY_SCALE, WEDGE_BITS, quantise, quantise_ratio
+from partition.rules import AFFINITIES, AFFINITY_SCALE, DEFAULT_HUB_CAP, WEDGE_BITS, quantise, quantise_ratio
 
 __all__ = [
     "edge_affinity",
@@ -62,8 +62,7 @@ __all__ = [
     "DEFAULT_HUB_CAP",
 ]
 
-METHODS = ("jaccard", "ppr", "weights", "unit")
-DEFAULT_HUB_CAP = 1000
+METHODS = AFFINITIES  # the names of the rule module, where the command line reads them without numba
 
 
 def edge_affinity(graph, method="jaccard", alpha=0.15, steps=2, hub_cap=DEFAULT_HUB_CAP, seed=0):

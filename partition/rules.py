@@ -94,6 +94,10 @@ AFFINITY_BITS = 20
 AFFINITY_SCALE = 1 << AFFINITY_BITS
 WEDGE_BITS = 32
 LINKAGES = ("sum", "average", "max")
+AFFINITIES = ("jaccard", "ppr", "weights", "unit")
+"""The edge affinities (:mod:`partition.affinity`); here so that the command line needs no numba to list them."""
+DEFAULT_HUB_CAP = 1000
+"""Nodes of higher degree credit no common neighbour (:mod:`partition.affinity`)."""
 
 _GOLDEN = np.uint64(0x9E3779B97F4A7C15)
 _M1 = np.uint64(0xBF58476D1CE4E5B9)

@@ -18,9 +18,8 @@ EXAMPLE = ("shardline run rides.csv.gz --weight-column rides -k 8 --imbalance 0.
 
 
 def add_arguments(parser):
-    from partition.affinity import DEFAULT_HUB_CAP, METHODS as AFFINITIES
     from partition.outputs import REPORT, TABLE, TABLE_OR_FOLDER, declare_outputs
-    from partition.rules import LINKAGES
+    from partition.rules import AFFINITIES, DEFAULT_HUB_CAP, LINKAGES
 
     declare_outputs(parser, output=TABLE_OR_FOLDER, report=REPORT, order_output=TABLE_OR_FOLDER,
                     hierarchy_output=TABLE)
