@@ -457,7 +457,7 @@ def _read_headed(path, wanted, weighted, delim, kind, header, ncols=3):
 
     head = next(csv.reader([first_text], delimiter=delim), [])
     width = len(head)
-    if header is None and width and all(_is_number(f) for f in head):
+    if header is None and width and all(is_number(f) for f in head):
         raise InputError(path, f"the first row {first_text.strip()[:80]!r} looks like data, not a header: pass "
                                "--no-header to read it as data (or --header if it names the columns)", first_line)
     if header is not False:
@@ -490,7 +490,8 @@ def _read_headed(path, wanted, weighted, delim, kind, header, ncols=3):
     return cols, chosen, row_to_line
 
 
-def _is_number(text):
+def is_number(text):
+    """Whether ``text`` reads as a number (the header rule's test of a first line)."""
     try:
         float(text)
     except ValueError:

@@ -54,17 +54,9 @@ def add_arguments(parser):
 
 
 def _read_json(path, what):
-    try:
-        with open(path, encoding="utf-8") as fh:
-            text = fh.read()
-    except FileNotFoundError:
-        raise InputError(path, f"no such file ({what})") from None
-    except OSError as exc:
-        raise InputError(path, f"cannot be read ({exc.strerror or exc})") from None
-    try:
-        data = json.loads(text)
-    except json.JSONDecodeError as exc:
-        raise InputError(path, f"is not valid JSON ({exc.msg})", exc.lineno) from None
+    from partition.jsonfile import read_json
+
+    data = read_json(path, what)
     if not isinstance(data, dict) or "k" not in data or not isinstance(data.get("result"), dict):
         raise InputError(path, "is not a 'shardline run' report: it lacks 'k' or 'result'")
     return data

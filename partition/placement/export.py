@@ -97,17 +97,9 @@ def file_sha256(path, chunk=1 << 20):
 
 
 def _read_report(path):
-    try:
-        with open(path, "r", encoding="utf-8") as fh:
-            text = fh.read()
-    except FileNotFoundError:
-        raise InputError(path, "no such file (the run's JSON report; give it with --report)") from None
-    except OSError as exc:
-        raise InputError(path, f"cannot be read ({exc.strerror or exc})") from None
-    try:
-        report = json.loads(text)
-    except json.JSONDecodeError as exc:
-        raise InputError(path, f"is not valid JSON ({exc.msg})", exc.lineno) from None
+    from partition.jsonfile import read_json
+
+    report = read_json(path, "the run's JSON report; give it with --report")
     if not isinstance(report, dict) or "k" not in report or not isinstance(report.get("input"), dict) \
             or "graph" not in report["input"]:
         raise InputError(path, "is not a run report: it lacks 'k' or 'input.graph'")

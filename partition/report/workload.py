@@ -25,7 +25,6 @@ naming the file and, for bad JSON, the line.
 
 from __future__ import annotations
 
-import json
 import math
 
 from partition.errors import InputError
@@ -52,18 +51,9 @@ def read_workload(path):
     InputError
         Missing file, bad JSON, or a field that breaks the rules above.
     """
-    try:
-        with open(path, encoding="utf-8") as fh:
-            text = fh.read()
-    except FileNotFoundError:
-        raise InputError(path, "no such file (the workload replay summary)") from None
-    except OSError as exc:
-        raise InputError(path, f"cannot be read ({exc.strerror or exc})") from None
-    try:
-        data = json.loads(text)
-    except json.JSONDecodeError as exc:
-        raise InputError(path, f"is not valid JSON ({exc.msg})", exc.lineno) from None
-    return parse_workload(data, source=str(path))
+    from partition.jsonfile import read_json
+
+    return parse_workload(read_json(path, "the workload replay summary"), source=str(path))
 
 
 def _number(value, what, source, whole=False, low=0.0, high=math.inf):

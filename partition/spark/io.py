@@ -28,7 +28,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from partition.edgelist import decode_delimiter, pick_columns, sniff_delimiter
+from partition.edgelist import decode_delimiter, is_number, pick_columns, sniff_delimiter
 from partition.errors import InputError
 from partition.ids import CANONICAL_INT_SQL
 from partition.spark.frames import dense_rank, to_numpy
@@ -184,7 +184,7 @@ def _csv_fields(src, delim, header, wanted, weighted, kind):
     delim = delim or sniff_delimiter([r["line"] for r in first], kind)
     head = next(csv.reader(io.StringIO(first[0]["line"]), delimiter=delim))
     width = len(head)
-    if header is None and width and all(_is_number(f) for f in head):
+    if header is None and width and all(is_number(f) for f in head):
         raise src.error(f"the first row {first[0]['line'].strip()[:80]!r} looks like data, not a header: pass "
                         "--no-header to read it as data (or --header if it names the columns)", first[0]["key"])
     names = [h.strip() for h in head] if header is not False else [str(i + 1) for i in range(width)]
@@ -240,14 +240,6 @@ def _refuse_invalid_utf8(src, lines):
     bad = _first(lines.filter(~F.col("utf8")))
     if bad is not None:
         raise src.error("is not valid UTF-8 text; ids must be UTF-8 text", bad)
-
-
-def _is_number(text):
-    try:
-        float(text)
-    except ValueError:
-        return False
-    return True
 
 
 def _text_header(src, raw, header, weighted, canon):
