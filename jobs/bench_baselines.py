@@ -1,6 +1,6 @@
 """Benchmark: cut fraction, imbalance and run time of every baseline partitioner.
 
-For each public graph in ``../shared/datasets`` (sources in its CATALOG.md) and
+For each public graph in ``../shared/datasets`` (sources in ../shared/datasets/CATALOG.md) and
 each k in {2, 8, 20, 64} and ε in {0, 0.03}, runs every method of
 :data:`partition.baselines.METHODS` and prints the cut fraction, the imbalance
 (max shard weight / (W/k) − 1) and the seconds taken; every result is checked

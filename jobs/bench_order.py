@@ -1,6 +1,6 @@
 """Benchmark of the ordering stages: affinity, hierarchy, linear order, raw line cut.
 
-For every public graph in ``../shared/datasets`` (sources in its CATALOG.md)
+For every public graph in ``../shared/datasets`` (sources in ../shared/datasets/CATALOG.md)
 and a Graph500 R-MAT graph of about a million edges, print the time of each
 stage and the raw line-cut fraction at k = 2, 8, 64: the order is cut into k
 contiguous pieces of (as near as possible) equal node count and the fraction

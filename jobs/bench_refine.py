@@ -7,7 +7,7 @@ duplicates) at k = 64, from a line cut of the reverse Cuthill–McKee order
 Numba kernels are compiled on a tiny graph first, so the times exclude it.
 
 Part 2 reports cut fractions on public graphs from ``../shared/datasets``
-(sources in its CATALOG.md): the start (the hierarchy's leaf order cut into k
+(sources in ../shared/datasets/CATALOG.md): the start (the hierarchy's leaf order cut into k
 pieces when the hierarchy stages are importable, otherwise the RCM line cut),
 flat pairwise FM, multilevel refinement, and min-cut repair after multilevel.
 
@@ -108,7 +108,7 @@ def bench_rmat(scale, edge_factor, k, eps):
 
 
 def bench_shared(eps):
-    print(f"\nPublic graphs (../shared/datasets, CATALOG.md), eps = {eps}: cut fractions")
+    print(f"\nPublic graphs (../shared/datasets/CATALOG.md), eps = {eps}: cut fractions")
     for name, k in CASES:
         path = SHARED / name
         if not path.exists():

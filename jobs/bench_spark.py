@@ -36,6 +36,8 @@ from pathlib import Path
 
 import numpy as np
 
+from partition.plan import make_plan
+
 ROOT = Path(__file__).resolve().parents[1]
 DATASETS = ROOT.parent / "shared" / "datasets"
 
@@ -74,7 +76,7 @@ def bench_rmat(spark, args, work):
 
     t = time.perf_counter()
     with TreePeak() as mem:
-        rep = run_spark(str(path), args.k, 0.0, args.seed, mode="distributed", work_dir=Path(work) / "run",
+        rep = run_spark(str(path), make_plan(args.k, 0.0, args.seed, engine="spark"), work_dir=Path(work) / "run",
                         output=Path(work) / "out", progress=progress, spark=spark)
     total = time.perf_counter() - t
     print(f"\nR-MAT scale {args.scale}: n = {rep['graph']['nodes']}, m = {rep['graph']['edges']}, k = {args.k}, "
@@ -148,7 +150,7 @@ def bench_star(spark, args, work):
     from partition.generators import write_edgelist
     from partition.partitioner import partition_graph
     from partition.spark.engine import run_spark
-    from partition.spark.refine import UNIT_STEPS
+    from partition.plan import UNIT_STEPS
 
     leaves = args.star
     clique = np.array([(i, j) for i in range(leaves + 1, leaves + 51) for j in range(i + 1, leaves + 51)])
@@ -158,7 +160,7 @@ def bench_star(spark, args, work):
     write_edgelist(path, src, dst, comment=f"star with {leaves} leaves and a 50-clique")
     print(f"\nskew: star with {leaves:,} leaves + 50-clique ({src.size:,} edges), k = 8, distributed mode")
     t = time.perf_counter()
-    rep = run_spark(str(path), 8, 0.0, args.seed, mode="distributed", work_dir=Path(work) / "star-run",
+    rep = run_spark(str(path), make_plan(8, 0.0, args.seed, engine="spark"), work_dir=Path(work) / "star-run",
                     output=Path(work) / "star-out", spark=spark,
                     progress=lambda row: print("  " + str(row), file=sys.stderr, flush=True))
     total = time.perf_counter() - t
@@ -181,7 +183,7 @@ def bench_agreement(spark, args, work):
     from partition.partitioner import partition_graph
     from partition.spark.engine import partition_spark
     from partition.spark.io import read_graph_df
-    from partition.spark.refine import UNIT_STEPS
+    from partition.plan import UNIT_STEPS
 
     files = sorted(p for p in DATASETS.glob("*.txt*"))
     if args.graphs:
@@ -196,7 +198,7 @@ def bench_agreement(spark, args, work):
     for p in files:
         t = time.perf_counter()
         sg = read_graph_df(spark, str(p))
-        parts, _, rep = partition_spark(spark, sg, args.agreement_k, seed=args.seed, mode="distributed",
+        parts, _, rep = partition_spark(spark, sg, make_plan(args.agreement_k, seed=args.seed, engine="spark"),
                                         work_dir=Path(work) / p.name)
         ts = time.perf_counter() - t
         g = read_graph(p)
@@ -205,8 +207,8 @@ def bench_agreement(spark, args, work):
         tm = time.perf_counter() - t
         same = bool(np.array_equal(parts, ref.parts))
         t = time.perf_counter()
-        fparts, _, frep = partition_spark(spark, sg, args.agreement_k, seed=args.seed, mode="full",
-                                          work_dir=Path(work) / (p.name + "-full"))
+        fparts, _, frep = partition_spark(spark, sg, make_plan(args.agreement_k, seed=args.seed, engine="spark",
+                                                               mode="full"), work_dir=Path(work) / (p.name + "-full"))
         tf = time.perf_counter() - t
         fsame = bool(np.array_equal(fparts, partition_graph(g, args.agreement_k, 0.0, args.seed).parts))
         bad += (not same) + (not fsame)

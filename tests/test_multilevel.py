@@ -122,7 +122,7 @@ def leaf_order_start(labels, k):
 
 def test_public_mesh_multilevel_beats_flat_refinement():
     # 3elt, Walshaw archive mesh (copy from SuiteSparse): 4720 nodes, 13722 edges
-    # (CATALOG.md). From the leaf-order start the multilevel sweep must end
+    # (../shared/datasets/CATALOG.md). From the leaf-order start the multilevel sweep must end
     # balanced, below the start, and below flat pairwise FM from the same start.
     # Measured (k = 8, ε = 0.03): start 0.0703, multilevel 0.0347, flat FM 0.0504
     # (cut edges / edges).
@@ -131,7 +131,7 @@ def test_public_mesh_multilevel_beats_flat_refinement():
         pytest.skip(f"public graph not found: {path}")
     data = np.loadtxt(path, dtype=np.int64, comments="#")
     g = build_graph(data[:, 0], data[:, 1])
-    assert (g.n, g.m) == (4720, 13722)  # counts from CATALOG.md
+    assert (g.n, g.m) == (4720, 13722)  # counts from ../shared/datasets/CATALOG.md
     k = 8
     rule = balance_rule(None, k, 0.03, g.n)
     labels = nested_levels(g)

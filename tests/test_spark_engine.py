@@ -27,6 +27,7 @@ from partition.edgelist import read_graph  # noqa: E402
 from partition.errors import InputError  # noqa: E402
 from partition.hierarchy import build_hierarchy  # noqa: E402
 from partition.partitioner import partition_graph  # noqa: E402
+from partition.plan import make_plan  # noqa: E402
 
 pytestmark = pytest.mark.spark
 ROOT = Path(__file__).resolve().parents[1]
@@ -72,7 +73,8 @@ def _run(spark, path, k, mode, tmp, **kw):
     from partition.spark.io import read_graph_df
 
     sg = read_graph_df(spark, path, **{x: kw.pop(x) for x in ("node_weights", "allow_isolated") if x in kw})
-    return partition_spark(spark, sg, k, seed=kw.pop("seed", 0), mode=mode, work_dir=tmp, **kw)
+    plan = make_plan(k, kw.pop("eps", 0.0), kw.pop("seed", 0), engine="spark", mode=mode, **kw)
+    return partition_spark(spark, sg, plan, work_dir=tmp)
 
 
 def test_input_normalised_like_memory(spark, mixed_graph, tmp_path):
@@ -207,7 +209,7 @@ def test_distributed_mode_weighted_edges_and_nodes_match_memory(spark, tmp_path)
     nwp.write_text("\n".join(f"{i} {1 + i % 3}" for i in range(100)) + "\n")
     g = read_graph(str(path), weighted=True, node_weights=str(nwp))
     sg = read_graph_df(spark, str(path), weighted=True, node_weights=str(nwp))
-    parts, order, rep = partition_spark(spark, sg, 4, 0.03, seed=3, mode="distributed", work_dir=tmp_path / "w")
+    parts, order, rep = partition_spark(spark, sg, make_plan(4, 0.03, 3, engine="spark"), work_dir=tmp_path / "w")
     ref = partition_graph(g, 4, 0.03, 3, starts=("hierarchy",), refine=UNIT)
     assert np.array_equal(order, ref.order)
     assert np.array_equal(parts, ref.parts)
@@ -333,7 +335,7 @@ def test_spark_run_output_exports_like_the_memory_run(spark, mixed_graph, tmp_pa
     from partition.placement.export import export_run
     from partition.spark.engine import run_spark
 
-    rep = run_spark(mixed_graph, 3, 0.0, 2, output=tmp_path / "spark.parquet",
+    rep = run_spark(mixed_graph, make_plan(3, 0.0, 2, engine="spark"), output=tmp_path / "spark.parquet",
                     report=str(tmp_path / "spark.parquet.report.json"), work_dir=tmp_path / "w", spark=spark)
     assert main(["run", mixed_graph, "-k", "3", "--seed", "2", "--starts", "hierarchy", "--refine",
                  "window,fm,swaps", "--engine", "memory", "--quiet", "-o", str(tmp_path / "mem.csv")]) == 0
@@ -356,7 +358,7 @@ def test_recut_on_spark_equals_memory(spark, mixed_graph, tmp_path):
     from partition.spark.recut import read_order_df, recut_spark
 
     order_path = tmp_path / "order.parquet"
-    run_spark(mixed_graph, 3, 0.0, 2, output=tmp_path / "run.parquet", order_output=order_path,
+    run_spark(mixed_graph, make_plan(3, 0.0, 2, engine="spark"), output=tmp_path / "run.parquet", order_output=order_path,
               work_dir=tmp_path / "w", spark=spark)
     g = read_graph(mixed_graph)
     sg = read_graph_df(spark, mixed_graph)
@@ -381,7 +383,7 @@ def test_spark_export_holds_the_rows_of_the_memory_export(spark, mixed_graph, tm
     """Spark's export folders hold, shard by shard, the rows of the in-memory export; checksums verify."""
     from partition.spark.engine import run_spark
 
-    run_spark(mixed_graph, 5, 0.0, 2, output=tmp_path / "run.parquet", report=str(tmp_path / "run.parquet.report.json"),
+    run_spark(mixed_graph, make_plan(5, 0.0, 2, engine="spark"), output=tmp_path / "run.parquet", report=str(tmp_path / "run.parquet.report.json"),
               work_dir=tmp_path / "w", spark=spark)
     for fmt in ("parquet", "csv"):
         (tmp_path / fmt).mkdir()

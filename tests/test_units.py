@@ -95,12 +95,17 @@ def test_check_partition_errors():
 
 
 def test_pair_rounds_settles_pairs_that_change_nothing():
-    from partition.refine.units import pair_rounds
+    from partition.refine.rounds import pair_rounds
+    from partition.refine.units import shard_cut_matrix
 
     rng = np.random.default_rng(6)
     g = build_graph(rng.integers(0, 80, 400), rng.integers(0, 80, 400))
     parts = np.arange(g.n) % 6
+    ones = np.ones(g.indices.shape[0], dtype=np.int64)
     seen = []
+
+    def cut_matrix(p):
+        return shard_cut_matrix(g, p, 6, ones)
 
     def idle_round(current, pairs):
         seen.extend(pairs)
@@ -108,10 +113,9 @@ def test_pair_rounds_settles_pairs_that_change_nothing():
 
     for schedule in ("round_robin", "matched", "line"):
         seen.clear()
-        _, rounds = pair_rounds(g, parts, 6, np.ones(g.indices.shape[0], dtype=np.int64), idle_round,
-                                schedule=schedule, max_rounds=50)
+        _, rounds = pair_rounds(parts, 6, cut_matrix, idle_round, schedule=schedule, max_rounds=50)
         assert len(seen) == len(set(seen))  # no pair is run twice while nothing changes
         if schedule != "line":
             assert len(seen) == 15  # all 6 · 5 / 2 pairs touch (random graph), each once
     with pytest.raises(ParameterError, match="schedule"):
-        pair_rounds(g, parts, 6, np.ones(g.indices.shape[0], dtype=np.int64), idle_round, schedule="spiral")
+        pair_rounds(parts, 6, cut_matrix, idle_round, schedule="spiral")

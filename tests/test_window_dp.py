@@ -235,7 +235,7 @@ def test_3elt_cuthill_mckee_line():
         pytest.skip(f"shared dataset {path} is not available")
     data = np.loadtxt(path, comments="#", dtype=np.int64, ndmin=2)
     g = build_graph(data[:, 0], data[:, 1], source=str(path))
-    assert (g.n, g.m) == (4720, 13722)  # counts from the shared CATALOG.md
+    assert (g.n, g.m) == (4720, 13722)  # counts from ../shared/datasets/CATALOG.md
     order = csgraph.reverse_cuthill_mckee(g.to_scipy().tocsr(), symmetric_mode=True).astype(np.int64)
     k = 8
     G = _to_nx(g)

@@ -81,19 +81,16 @@ def add_graph_arguments(parser, positional=True):
     return parser
 
 
+def read_options(args):
+    """The input options of :func:`add_graph_arguments` as keywords, the same for both engines' readers."""
+    return {"fmt": args.graph_format, "weighted": args.weighted, "source_column": args.source_column,
+            "target_column": args.target_column, "weight_column": args.weight_column,
+            "node_weights": args.node_weights, "header": args.header, "delimiter": args.delimiter,
+            "allow_isolated": args.allow_isolated}
+
+
 def graph_from_args(args):
     """Read the graph named by the options of :func:`add_graph_arguments`."""
     from partition.edgelist import read_graph
 
-    return read_graph(
-        args.graph,
-        fmt=args.graph_format,
-        weighted=args.weighted,
-        source_column=args.source_column,
-        target_column=args.target_column,
-        weight_column=args.weight_column,
-        node_weights=args.node_weights,
-        header=args.header,
-        delimiter=args.delimiter,
-        allow_isolated=args.allow_isolated,
-    )
+    return read_graph(args.graph, **read_options(args))

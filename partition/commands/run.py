@@ -9,7 +9,7 @@ import time
 
 from partition import __version__
 from partition.commands.common import add_graph_arguments, add_shared, graph_from_args
-from partition.errors import ParameterError, check_imbalance, check_parts
+from partition.errors import ParameterError, check_parts
 
 NAME = "run"
 HELP = "partition a graph into k balanced shards with few cut edges (the main job)"
@@ -62,7 +62,7 @@ def add_arguments(parser):
 
 def run(args) -> int:
     from partition.assignment import write_assignment
-    from partition.partitioner import partition_graph
+    from partition.partitioner import run_memory
     from partition.score import score
     from partition.placement.export import file_sha256
     from partition.outputs import TABLE
@@ -70,9 +70,7 @@ def run(args) -> int:
 
     from partition.errors import check_move_cost
 
-    check_imbalance(args.imbalance)
     check_move_cost(args.move_cost)
-    k = check_parts(args.k)
     if args.hub_cap < 1:
         raise ParameterError(f"--hub-cap must be at least 1, got {args.hub_cap}")
     report_path = args.report or f"{args.output}.report.json"
@@ -87,8 +85,10 @@ def run(args) -> int:
         engine = "memory" if not os.path.exists(args.graph) or fits_driver(args.graph) else "spark"
         if progress and engine == "spark":
             progress.line("engine auto: Spark (the graph is too large for this machine's memory)")
+    plan = plan_from_args(args, engine)
+    k = plan.k
     if engine == "spark":
-        return _run_spark(args, k, report_path, progress)
+        return _run_spark(args, plan, report_path, progress)
     for flag, path in (("-o", args.output), ("--order-output", args.order_output)):
         if path is not None and os.path.isdir(path):
             raise ParameterError(f"{flag} {path} is an existing directory; the in-memory engine writes a table file")
@@ -103,9 +103,7 @@ def run(args) -> int:
     if progress:
         progress.line(f"read {graph.n:,} nodes, {graph.m:,} edges in {read_seconds:.2f} s; engine: in memory")
     try:
-        result = partition_graph(graph, k, eps=args.imbalance, seed=args.seed, affinity=args.affinity,
-                                 linkage=args.linkage, hub_cap=args.hub_cap, starts=args.starts,
-                                 refine=args.refine, progress=progress)
+        result = run_memory(graph, plan, progress)
     finally:
         if progress:
             progress.close()
@@ -157,22 +155,27 @@ def run(args) -> int:
     return 0
 
 
-def _run_spark(args, k, report_path, progress):
+def plan_from_args(args, engine):
+    """The run's :class:`~partition.plan.Plan` from its options (checked before anything is read)."""
+    from partition.plan import make_plan
+
+    return make_plan(args.k, args.imbalance, args.seed, affinity=args.affinity, linkage=args.linkage,
+                     hub_cap=args.hub_cap, starts=args.starts, refine=args.refine, engine=engine, mode=args.mode,
+                     collect_edges=args.collect_edges)
+
+
+def _run_spark(args, plan, report_path, progress):
+    from partition.commands.common import read_options
     from partition.spark.engine import run_spark
 
     if args.previous or args.hierarchy_output:
         raise ParameterError("--previous and --hierarchy-output need --engine memory for now")
     lower = str(args.output).lower()
     try:
-        rep = run_spark(args.graph, k, args.imbalance, args.seed, affinity=args.affinity, linkage=args.linkage,
-                        hub_cap=args.hub_cap, mode=args.mode, fmt=args.graph_format, weighted=args.weighted,
-                        node_weights=args.node_weights, allow_isolated=args.allow_isolated, master=args.master,
-                        output=args.output, output_format="csv" if lower.endswith(".csv") else "parquet",
-                        report=report_path, work_dir=args.work_dir, resume=args.resume, progress=progress,
-                        source_column=args.source_column, target_column=args.target_column,
-                        weight_column=args.weight_column, header=args.header, delimiter=args.delimiter,
-                        order_output=args.order_output, starts=args.starts, refine=args.refine,
-                        collect_edges=args.collect_edges)
+        rep = run_spark(args.graph, plan, read_options(args), output=args.output,
+                        output_format="csv" if lower.endswith(".csv") else "parquet",
+                        order_output=args.order_output, report=report_path, work_dir=args.work_dir,
+                        resume=args.resume, master=args.master, progress=progress)
     finally:
         if progress:
             progress.close()

@@ -20,7 +20,7 @@ refinement may have made another naming better; renaming never changes the
 cut and never lowers the kept weight, since keeping the names is one of the
 candidates). The balance rule is kept (the kernel never
 breaks it from a balanced start). Units are disjoint shard pairs scheduled by
-:func:`partition.refine.units.pair_rounds`; a unit reads and moves only the
+:func:`partition.refine.rounds.pair_rounds`; a unit reads and moves only the
 nodes of its two shards, so the rounds give the same result in any order.
 
 Integer arithmetic. Edge weights are the integer weights of
@@ -49,7 +49,8 @@ from partition.graph import Graph
 from partition.placement.relabel import moved_fraction, relabel_to_match
 from partition.refine.fm import fm_pair
 from partition.refine.gains import cut_total, cut_weights
-from partition.refine.units import check_partition, pair_rounds, shard_index
+from partition.refine.rounds import pair_rounds
+from partition.refine.units import check_partition, shard_cut_matrix, shard_index
 
 __all__ = ["stabilise", "anchored_graph", "move_objective", "check_move_cost"]
 
@@ -185,7 +186,7 @@ def stabilise(graph, new_parts, old_parts, k, rule, move_cost=0.0, refine=None, 
     seed : int
         Orders the round-robin rounds (``numpy.random.default_rng(seed)``).
     schedule : {"matched", "round_robin", "line"}
-        Pair schedule (:func:`partition.refine.units.pair_rounds`).
+        Pair schedule (:func:`partition.refine.rounds.pair_rounds`).
     max_rounds, max_passes, max_stall : int
         Limits passed to the pair rounds and to :func:`partition.refine.fm.fm_pair`.
 
@@ -271,8 +272,8 @@ def stabilise(graph, new_parts, old_parts, k, rule, move_cost=0.0, refine=None, 
                 changed.append(bool(np.any(out != before)))
             return current, gains, changed
 
-        state, rounds = pair_rounds(aug, state, k, weights, run_round, schedule=schedule,
-                                    max_rounds=max_rounds, seed=seed)
+        state, rounds = pair_rounds(state, k, lambda p: shard_cut_matrix(aug, p, k, weights), run_round,
+                                    schedule=schedule, max_rounds=max_rounds, seed=seed)
         parts = state[:n].copy()
         stats["rounds"] = len(rounds)
         # rename once more: the cut stays, and the kept weight can only grow

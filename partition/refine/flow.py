@@ -36,7 +36,8 @@ from scipy.sparse.csgraph import breadth_first_order, maximum_flow
 
 from partition.errors import ParameterError
 from partition.refine.rebalance import rebalance_kernel
-from partition.refine.units import SCHEDULES, fixed_point_weights, refine_pairs, shard_index
+from partition.refine.rounds import PAIR_SCHEDULES as SCHEDULES
+from partition.refine.units import fixed_point_weights, refine_pairs, shard_index
 
 __all__ = ["boundary_region", "pair_min_cut", "flow_pair", "refine_flow"]
 
@@ -278,7 +279,7 @@ def refine_flow(graph, parts, rule, schedule="round_robin", max_rounds=None, see
     schedule : {"round_robin", "line", "matched"}
         As in :func:`partition.refine.fm.refine_fm`.
     max_rounds : int, optional
-        As in :func:`partition.refine.units.pair_rounds`; stops earlier when no
+        As in :func:`partition.refine.rounds.pair_rounds`; stops earlier when no
         pair can gain.
     seed : int
         Orders the round-robin rounds (``numpy.random.default_rng(seed)``).
@@ -290,7 +291,7 @@ def refine_flow(graph, parts, rule, schedule="round_robin", max_rounds=None, see
         Integer edge weights (default :func:`fixed_point_weights`).
     tol : float, default 0
         Stop after two rounds that each removed at most ``tol`` times the cut
-        (:func:`partition.refine.units.pair_rounds`).
+        (:func:`partition.refine.rounds.pair_rounds`).
 
     Returns
     -------

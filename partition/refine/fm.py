@@ -43,8 +43,8 @@ import numpy as np
 
 from partition.errors import ParameterError
 from partition.refine.kway import fm_kway
+from partition.refine.rounds import PAIR_SCHEDULES as SCHEDULES
 from partition.refine.units import (
-    SCHEDULES,
     check_partition,
     edge_cut,
     fixed_point_weights,
@@ -358,7 +358,7 @@ def refine_fm(graph, parts, rule, schedule="round_robin", max_rounds=None, seed=
         Where the pairs of each round come from (:mod:`partition.refine.schedule`):
         all pairs in a seeded order of round-robin rounds, line neighbours, or a
         greedy matching of the start-of-round shard cut matrix; pairs that
-        cannot gain are skipped (:func:`partition.refine.units.pair_rounds`).
+        cannot gain are skipped (:func:`partition.refine.rounds.pair_rounds`).
     max_rounds : int, optional
         Default: one round-robin tour (``k - 1`` or ``k`` rounds), ``k`` rounds
         for ``matched``, 4 for ``line``. Stops earlier when no pair can gain.
@@ -368,7 +368,7 @@ def refine_fm(graph, parts, rule, schedule="round_robin", max_rounds=None, seed=
         Passed to :func:`fm_pair` (see :func:`fm_round`).
     tol : float, default 0
         Stop after two rounds in a row that each removed at most ``tol`` times
-        the cut at their start (:func:`partition.refine.units.pair_rounds`).
+        the cut at their start (:func:`partition.refine.rounds.pair_rounds`).
     n_jobs : int
         Threads per round (the result does not depend on it).
     weights : ndarray of int64, optional

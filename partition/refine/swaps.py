@@ -49,12 +49,11 @@ import numba
 import numpy as np
 
 from partition.errors import ParameterError
-from partition.refine import schedule as _schedule
 from partition.refine.gains import cut_total, cut_weights, local_index, shard_cut_matrix
+from partition.refine.rounds import SWAP_SCHEDULES as SCHEDULES, swap_rounds
 
 __all__ = ["swap_pair", "swap_round", "refine_swaps", "SCHEDULES"]
 
-SCHEDULES = ("line", "matched", "round_robin")
 PATIENCE = 64  # pairs scanned past the best prefix before an iteration gives up
 _EMPTY_I64 = np.empty(0, dtype=np.int64)
 
@@ -385,13 +384,6 @@ def _units(graph, parts, pairs, rule, iterations, weights, nweights):
     return new, gains, moved
 
 
-def _sweep(kind, k):
-    """The rounds of one sweep of a fixed schedule."""
-    if kind == "line":
-        return [_schedule.line_pairs(k, 0), _schedule.line_pairs(k, 1)]
-    return _schedule.round_robin(k)
-
-
 def refine_swaps(graph, parts, k, rule, max_rounds=20, tol=1e-3, schedule="matched", iterations=4):
     """Improve a partition by rounds of pairwise boundary swaps.
 
@@ -447,39 +439,12 @@ def refine_swaps(graph, parts, k, rule, max_rounds=20, tol=1e-3, schedule="match
     parts = _check_parts_array(parts, graph.n, k).astype(np.int32, copy=True)
     weights, scale = cut_weights(graph.edge_weights)
     cut = cut_total(graph.indptr, graph.indices, weights, parts)
-    stats = {"cut_before": cut / scale, "rounds": 0, "moved": 0, "gains": [], "schedule": schedule}
-    rounds = 0
     nweights = _node_weights(graph)
-    stale = np.zeros((k, k), dtype=bool)
-    while rounds < max_rounds and cut > 0 and k > 1:
-        start = cut
-        if schedule == "matched":
-            mat = shard_cut_matrix(graph.indptr, graph.indices, weights, parts, k)
-            sweep = [_schedule.matched_pairs(np.where(stale, 0, mat))]
-            if not sweep[0]:
-                break
-        else:
-            sweep = _sweep(schedule, k)
-        for pairs in sweep:
-            if rounds >= max_rounds:
-                break
-            if not pairs:
-                continue
-            parts, gains, moved = _units(graph, parts, pairs, rule, iterations, weights, nweights)
-            cut -= sum(gains)
-            rounds += 1
-            stats["moved"] += sum(moved)
-            stats["gains"].append(sum(gains) / scale)
-            if schedule == "matched":
-                for (a, b), mv in zip(pairs, moved):
-                    if mv:  # a changed shard may pair well again with anyone
-                        stale[[a, b], :] = False
-                        stale[:, [a, b]] = False
-                for (a, b), g in zip(pairs, gains):
-                    if g <= tol * mat[a, b]:
-                        stale[a, b] = stale[b, a] = True
-        if schedule != "matched" and (start - cut <= tol * start or start == cut):
-            break
-    stats["rounds"] = rounds
-    stats["cut_after"] = cut / scale
+    parts, st = swap_rounds(
+        parts, k, cut, lambda p: shard_cut_matrix(graph.indptr, graph.indices, weights, p, k),
+        lambda p, pairs: _units(graph, p, pairs, rule, iterations, weights, nweights),
+        schedule, max_rounds, tol,
+    )
+    stats = {"cut_before": cut / scale, "rounds": st["rounds"], "moved": st["moved"],
+             "gains": [g / scale for g in st["gains"]], "schedule": schedule, "cut_after": st["cut"] / scale}
     return parts, stats

@@ -17,10 +17,10 @@ import numba
 import numpy as np
 
 from partition.errors import ParameterError
+from partition.refine.rounds import pair_rounds
 from partition.rules import AFFINITY_SCALE, quantise
 
 __all__ = [
-    "settle",
     "refine_pairs",
     "heap_push",
     "heap_pop",
@@ -163,103 +163,9 @@ def shard_index(parts, k):
     return order, bounds
 
 
-SCHEDULES = ("round_robin", "line", "matched")
-
-
-def settle(settled, pairs, changed):
-    """Mark unchanged pairs settled, then reopen every pair touching a shard that changed (in place)."""
-    for (a, b), ch in zip(pairs, changed):
-        if not ch:
-            settled[a, b] = settled[b, a] = True
-    for (a, b), ch in zip(pairs, changed):
-        if ch:
-            settled[[a, b], :] = False
-            settled[:, [a, b]] = False
-
-
-def pair_rounds(graph, parts, k, weights, run_round, schedule="round_robin", max_rounds=None, seed=0, tol=0.0):
-    """Drive rounds of disjoint shard pairs, skipping pairs known to gain nothing.
-
-    Each round takes its pairs from ``schedule`` (:mod:`partition.refine.schedule`):
-    a seeded order of the round-robin rounds, line neighbours (alternating
-    parity), or a greedy matching of the start-of-round cut matrix. A pair is
-    *settled* once a unit on it changed nothing; it stays settled until a unit
-    changes one of its two shards. A unit's result depends only on the nodes of
-    its two shards (see :mod:`partition.refine.fm`), so skipping a settled pair
-    changes no result; the matching is taken over unsettled pairs only, so the
-    matched schedule moves on to other pairs. Pairs with no cut edge are skipped.
-
-    Parameters
-    ----------
-    graph : Graph
-    parts : ndarray of int64, shape (n,)
-    k : int
-    weights : ndarray of int64
-        Integer edge weights (for the cut matrix).
-    run_round : callable
-        ``run_round(parts, pairs) -> (parts, gains, changed)`` with one gain and
-        one changed flag per pair.
-    schedule : {"round_robin", "line", "matched"}
-    max_rounds : int, optional
-        Default: one round-robin tour (``k − 1`` or ``k`` rounds) for
-        ``round_robin``, ``k`` for ``matched``, 4 for ``line``.
-    seed : int
-        Orders the round-robin rounds (``numpy.random.default_rng(seed)``).
-    tol : float, default 0
-        Stop after two rounds in a row whose gain was at most ``tol`` times the
-        cut at the start of the round (integer comparison of the gain with
-        ``tol · cut``; 0 turns the rule off: only rounds that change nothing
-        count then, as before).
-
-    Returns
-    -------
-    parts : ndarray of int64
-    rounds : list of dict
-        ``pairs`` run and summed ``gain`` of each round.
-
-    Raises
-    ------
-    ParameterError
-        For an unknown schedule.
-    """
-    from partition.refine.schedule import line_pairs, matched_pairs, round_robin
-
-    if schedule not in SCHEDULES:
-        raise ParameterError(f"unknown schedule {schedule!r}; choose one of {', '.join(SCHEDULES)}")
-    tour = round_robin(k)
-    perm = np.random.default_rng(seed).permutation(len(tour))
-    if max_rounds is None:
-        max_rounds = {"round_robin": len(tour), "matched": k, "line": 4}[schedule]
-    settled = np.zeros((k, k), dtype=bool)
-    rounds, idle, low = [], 0, 0
-    for r in range(int(max_rounds)):
-        cm = shard_cut_matrix(graph, parts, k, weights)
-        cut_now = int(cm.sum()) // 2
-        live = (cm > 0) & ~settled
-        if not live.any():
-            break
-        if schedule == "round_robin":
-            pairs = tour[perm[r % len(tour)]]
-        elif schedule == "line":
-            pairs = line_pairs(k, r)
-        else:
-            pairs = matched_pairs(np.where(live, cm, 0))
-        pairs = [(a, b) for a, b in pairs if live[a, b]]
-        parts, gains, changed = run_round(parts, pairs)
-        settle(settled, pairs, changed)
-        rounds.append({"pairs": len(pairs), "gain": sum(gains)})
-        idle = idle + 1 if not any(changed) else 0
-        if schedule == "line" and idle >= 2:
-            break
-        low = low + 1 if tol > 0 and sum(gains) <= tol * cut_now else 0
-        if low >= 2:
-            break
-    return parts, rounds
-
-
 def refine_pairs(graph, parts, rule, weights, make_round, schedule="round_robin", max_rounds=None, seed=0, tol=0.0,
                  t0=None):
-    """A pairwise refinement step end to end: fixed-point weights, :func:`pair_rounds`, statistics.
+    """A pairwise refinement step end to end: fixed-point weights, :func:`~partition.refine.rounds.pair_rounds`, statistics.
 
     Parameters
     ----------
@@ -271,9 +177,9 @@ def refine_pairs(graph, parts, rule, weights, make_round, schedule="round_robin"
         Integer edge weights; ``None``: :func:`fixed_point_weights` (the
         statistics' gains are then divided by its scale).
     make_round : callable
-        ``make_round(weights) -> run_round`` for :func:`pair_rounds`.
+        ``make_round(weights) -> run_round`` for :func:`~partition.refine.rounds.pair_rounds`.
     schedule, max_rounds, seed, tol
-        As :func:`pair_rounds`.
+        As :func:`partition.refine.rounds.pair_rounds`.
     t0 : float or None
         ``time.perf_counter()`` when the step started (default: now).
 
@@ -292,7 +198,8 @@ def refine_pairs(graph, parts, rule, weights, make_round, schedule="round_robin"
     else:
         scale = 1.0
     cut_before = float(edge_cut(graph, parts))
-    parts, rounds = pair_rounds(graph, parts, k, weights, make_round(weights), schedule, max_rounds, seed, tol)
+    parts, rounds = pair_rounds(parts, k, lambda p: shard_cut_matrix(graph, p, k, weights), make_round(weights),
+                                schedule, max_rounds, seed, tol)
     for r in rounds:
         r["gain"] = float(r["gain"]) / scale
     loads = np.bincount(parts, weights=graph.node_weight_array(), minlength=k)

@@ -50,7 +50,8 @@ chains, and each chain reads only its fixed neighbours and the start-of-round
 windows, so the chains of a round are independent units: solved together or
 one by one (or in parallel Spark tasks, each given the edges with both ends
 between its fixed neighbours and the prefix weights there) they give the same
-boundaries. :func:`refine_window` alternates the free sets so every boundary is
+boundaries. :func:`refine_window` alternates the free sets
+(:func:`partition.refine.rounds.window_rounds`) so every boundary is
 free in one of any two consecutive rounds; ``chain_length=0`` frees all
 boundaries at once (one chain: a global pass, run on the driver).
 """
@@ -63,6 +64,7 @@ import numpy as np
 from partition.cut import boundaries_from_parts, check_order, parts_from_boundaries, positions
 from partition.errors import ParameterError
 from partition.refine.gains import cut_total, cut_weights
+from partition.refine.rounds import free_mask, window_rounds
 
 __all__ = ["chain_dp", "window_dp_round", "refine_window", "line_edges", "windows", "default_window", "free_mask"]
 
@@ -357,21 +359,6 @@ def window_dp_round(p, q, ew, prefix, boundaries, free, w, cap, floor):
     return new, int(gain)
 
 
-def free_mask(k, round_index, chain_length):
-    """Which of the ``k - 1`` boundaries a window-DP round may move, as a boolean array.
-
-    All but every (L+1)-th boundary (L = ``chain_length``), the fixed ones
-    shifted each round so that every boundary moves in some round; all are
-    free when ``chain_length`` is 0.
-    """
-    j = np.arange(1, k, dtype=np.int64)
-    if chain_length == 0:
-        return np.ones(k - 1, dtype=bool)
-    period = chain_length + 1
-    shift = max(1, period // 2)
-    return (j + round_index * shift) % period != 0
-
-
 def refine_window(graph, order, cut, k, rule, w=None, chain_length=1, max_rounds=16):
     """Improve a line cut by moving its boundaries within small windows.
 
@@ -438,18 +425,13 @@ def refine_window(graph, order, cut, k, rule, w=None, chain_length=1, max_rounds
     np.cumsum(nw[order], out=prefix[1:])
     p, q, ew = line_edges(graph, order, weights)
     before = cut_total(graph.indptr, graph.indices, weights, parts_from_boundaries(order, start, k))
-    b = start.copy()
-    gains = []
-    total = 0
-    idle = 0
-    for r in range(max_rounds if k > 1 else 0):
-        nb, g = window_dp_round(p, q, ew, prefix, b, free_mask(k, r, chain_length), w, rule.cap, rule.floor)
-        idle = idle + 1 if np.array_equal(nb, b) else 0
-        b = nb
-        total += g
-        gains.append(g / scale)
-        if idle >= (1 if chain_length == 0 else 2):
-            break
+    b, gains = window_rounds(
+        start.copy(), k,
+        lambda bb, free: window_dp_round(p, q, ew, prefix, bb, free, w, rule.cap, rule.floor),
+        chain_length, max_rounds,
+    )
+    total = sum(gains)
+    gains = [g / scale for g in gains]
     parts = parts_from_boundaries(order, b, k)
     stats = {
         "cut_before": before / scale,

@@ -1,27 +1,25 @@
-"""The Spark engine's pipeline driver: read, affinity, hierarchy, order, cut, refine, write.
+"""The Spark engine: the pipeline of :mod:`partition.pipeline` over a graph held in Spark.
 
-:func:`run_spark` is what ``shardline run --engine spark`` calls; it returns the
-report dict. :func:`partition_spark` runs the pipeline on a
+:func:`run_spark` is what ``shardline run --engine spark`` (and
+``spark-submit jobs/spark_partition.py``) calls; it returns the report dict.
+:func:`partition_spark` runs a :class:`~partition.plan.Plan` on a
 :class:`~partition.spark.io.SparkGraph` and returns the shards, as
-:func:`partition.partitioner.partition_graph` does for an in-memory graph, with
-the same result for the same input, options and seed. Two modes:
+:func:`partition.partitioner.run_memory` does for an in-memory graph, with the
+same result for the same input, plan and seed: the loop over starts and steps
+is :func:`partition.pipeline.run_plan` for both, and :class:`SparkBackend`
+supplies its operations. Two modes:
 
 ``distributed``
-    Hierarchy start only and the unit-based refinement steps
-    (``window``, ``fm``, ``swaps``: :data:`partition.spark.refine.UNIT_STEPS`),
-    each unit a Spark task; nothing collects the edges. In memory:
-    ``partition_graph(..., starts=("hierarchy",), refine=UNIT_STEPS)``.
+    The edges stay in Spark. Starts ``hierarchy`` (Spark) and ``spectral``
+    (driver); the unit steps (``window``, ``fm``, ``swaps``:
+    :data:`partition.plan.UNIT_STEPS`) run each unit as a Spark task, by
+    default those three; other steps run on the driver over the collected
+    graph. In memory: ``partition_graph(..., starts=("hierarchy",),
+    refine=UNIT_STEPS)``.
 ``full``
-    The in-memory default plan, whatever it currently is (more starts —
-    spectral, degree —, multilevel V-cycles over several hierarchies, a pick
-    step, min-cut repair): Spark reads and normalises the input, the graph is
-    collected and :func:`partition.partitioner.partition_graph` runs on the
-    driver, so the result is the in-memory one by construction. Those steps
-    are not unit based yet; what each would need to run as Spark units is
-    listed in the project notes of this package (``multilevel``: the extra
-    hierarchies via :func:`partition.spark.hierarchy.build_hierarchy_df` with
-    other seeds/affinities, the atom graphs of each level by ``groupBy`` on
-    ``(label, shard)``, FM units on them, and the rebalancing pass per shard).
+    The in-memory default plan, whatever it currently is: Spark reads and
+    normalises the input, the graph is collected and the in-memory engine
+    runs on the driver, so the result is the in-memory one by construction.
 
 The driver holds O(n) arrays (hierarchy labels, positions, shards); the
 edges stay in Spark. GraphFrames is not needed (see
@@ -38,22 +36,18 @@ import json
 import os
 import tempfile
 import time
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
 
 from partition import __version__
-from partition.affinity import DEFAULT_HUB_CAP, METHODS as AFFINITIES
 from partition.atomic import write_text
-from partition.balance import balance_rule
-from partition.cut import line_cut
-from partition.errors import ParameterError, check_imbalance, check_parts
-from partition.rules import LINKAGES
+from partition.errors import ParameterError
+from partition.plan import MODES, STEP_OPTIONS, UNIT_STEPS
 from partition.sizing import BYTES_PER_EDGE, fits_driver  # noqa: F401 - the --engine auto rule
 
-__all__ = ["run_spark", "partition_spark", "fits_driver", "MODES", "BYTES_PER_EDGE"]
-
-MODES = ("distributed", "full")
+__all__ = ["run_spark", "partition_spark", "SparkBackend", "fits_driver", "MODES", "BYTES_PER_EDGE"]
 
 
 EDGES_PER_SHUFFLE_PARTITION = 4_000_000
@@ -104,43 +98,123 @@ class _Blocks:
         self.made.clear()
 
 
-DISTRIBUTED_STARTS = ("hierarchy", "spectral")
-"""Starts the distributed mode computes: the hierarchy's order in Spark, the spectral order on the driver."""
+class SparkBackend:
+    """The bulk operations of :func:`partition.pipeline.run_plan` over a graph held in Spark.
+
+    Affinities, the hierarchy and the hierarchy's order are Spark jobs; cuts
+    are jobs over the cached edge blocks; the unit steps (:data:`UNIT_STEPS`)
+    run their units as Spark tasks and the other steps run on the driver over
+    the collected graph (the stage rows say where). Orders and step results are
+    checkpointed under ``work_dir`` so an interrupted run resumes.
+    """
+
+    def __init__(self, spark, sg, plan, work_dir, resume, progress, fm_opts):
+        from partition.spark.checkpoint import Checkpoints
+        from partition.spark.io import node_weight_array
+
+        self.spark, self.sg, self.plan, self.progress = spark, sg, plan, progress
+        self.work_dir, self.resume, self.fm_opts = work_dir, resume, fm_opts
+        self.n, self.m = sg.n, sg.m
+        self.node_weights = node_weight_array(sg)
+        self.ones = np.ones(sg.n, dtype=np.int64) if self.node_weights is None else self.node_weights
+        options = {"k": plan.k, "eps": plan.eps, "seed": plan.seed, "affinity": plan.affinity,
+                   "linkage": plan.linkage, "hub_cap": plan.hub_cap, "mode": plan.mode, "n": sg.n, "m": sg.m,
+                   "source": sg.source}
+        self.ck = Checkpoints(work_dir, options, resume)
+        self.blocks = _Blocks(spark, sg)
+        self._graph = None
+        self.total_weight = sg.m if not sg.weighted else self._total()
+
+    def _total(self):
+        from pyspark.sql import functions as F
+
+        from partition.spark.refine import int_weights
+
+        wedges, _ = int_weights(self.spark, self.sg, "cut")
+        return int(wedges.agg(F.sum("wi")).collect()[0][0] or 0)
+
+    def graph(self):
+        """The graph collected to the driver, for the steps that are not unit based."""
+        if self._graph is None:
+            from partition.spark.io import collect_graph
+
+            self._graph = collect_graph(self.sg)
+        return self._graph
+
+    def affinity(self):
+        from partition.spark.affinity import edge_affinity_df
+        from partition.spark.session import describe
+
+        describe(self.spark, "affinity")
+        return edge_affinity_df(self.sg, self.plan.affinity, hub_cap=self.plan.hub_cap)
+
+    def hierarchy(self, affinity, seed):
+        from partition.spark.hierarchy import COLLECT_EDGES, build_hierarchy_df
+
+        collect = COLLECT_EDGES if self.plan.collect_edges is None else self.plan.collect_edges
+        return build_hierarchy_df(self.spark, affinity, self.sg.n, seed=seed, linkage=self.plan.linkage,
+                                  work=self.work_dir, resume=self.resume, collect_edges=collect,
+                                  progress=self.progress)
+
+    def order(self, name, hierarchy):
+        key = f"{name}-order"
+        if self.ck.has(key):
+            return self.ck.load(key)[0]["order"]
+        if name == "hierarchy":
+            from partition.spark.order import linear_order_df
+
+            order = linear_order_df(self.spark, hierarchy, self.sg.edges, blocks=self.blocks("cut"))
+        else:
+            from partition.embedding import spectral_order
+
+            order = spectral_order(self.graph(), seed=self.plan.seed)
+        self.ck.save(key, {"order": order})
+        return order
+
+    def cut(self, parts):
+        return self.blocks("cut").cut_total(parts)
+
+    def refine(self, step, start, order, parts, rule, hierarchy, affinity):
+        from partition.spark.refine import spark_fm, spark_swaps, spark_window
+
+        key = f"{start}-{step}"
+        where = "spark" if step in UNIT_STEPS else "driver"
+        if self.ck.has(key):
+            return self.ck.load(key)[0]["parts"], where
+        spark, sg, progress = self.spark, self.sg, self.progress
+        if step == "window":
+            parts = spark_window(spark, sg, order, parts, rule, self.node_weights, progress=progress,
+                                 blocks=self.blocks("cut"))
+        elif step == "fm":
+            parts = spark_fm(spark, sg, parts, rule, self.ones, seed=self.plan.seed, progress=progress,
+                             blocks=self.blocks("fm"), **self.fm_opts)
+        elif step == "swaps":
+            parts = spark_swaps(spark, sg, parts, rule, self.node_weights, progress=progress,
+                                blocks=self.blocks("cut"))
+        else:  # not unit based: on the driver with the in-memory step
+            from partition.partitioner import refine_step
+
+            parts = refine_step(step, self.graph(), order, parts, self.plan.k, rule, hierarchy, self.plan.seed)
+        parts = np.asarray(parts, dtype=np.int64)
+        self.ck.save(key, {"parts": parts})
+        return parts, where
 
 
-def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum", hub_cap=DEFAULT_HUB_CAP,
-                    mode="distributed", work_dir=None, resume=False, collect_edges=None, progress=None,
-                    starts="auto", refine="default"):
-    """Partition a :class:`~partition.spark.io.SparkGraph` (see the module docstring).
+def partition_spark(spark, sg, plan, work_dir=None, resume=False, progress=None):
+    """Partition a :class:`~partition.spark.io.SparkGraph` by ``plan`` (see the module docstring).
 
     Parameters
     ----------
     spark : SparkSession
     sg : partition.spark.io.SparkGraph
-    k : int
-    eps : float
-    seed : int
-    affinity : {"jaccard", "ppr", "weights", "unit"}
-    linkage : {"sum", "average", "max"}
-    hub_cap : int
-    mode : {"distributed", "full"}
-        See the module docstring.
+    plan : partition.plan.Plan
+        Built by :func:`partition.plan.make_plan` with ``engine="spark"``;
+        ``plan.mode`` picks the mode.
     work_dir : str or path-like
         Checkpoints (hierarchy rounds, stages).
     resume : bool
-    collect_edges : int or None
-        Coarse graphs with at most this many edges finish on the driver
-        (default :data:`partition.spark.hierarchy.COLLECT_EDGES`).
     progress : callable or None
         Called with one dict per stage and per hierarchy round.
-
-    starts, refine : str or tuple
-        As :func:`partition.partitioner.partition_graph`. ``mode="full"``
-        runs them on the driver as given; the distributed mode's ``"auto"``
-        is the hierarchy start and ``"default"`` the unit steps (window,
-        fm, swaps) as Spark tasks; it takes the starts hierarchy and
-        spectral, and any refinement steps (those that are not unit based
-        run on the driver, as the stage rows say).
 
     Returns
     -------
@@ -151,220 +225,85 @@ def partition_spark(spark, sg, k, eps=0.0, seed=0, affinity="jaccard", linkage="
     Raises
     ------
     ParameterError
-        Bad ``k``, ε, options, or a resume with other options.
+        Bad ``k`` for this graph, options the Spark units do not reproduce, or
+        a resume with other options.
     """
-    from partition.partitioner import STEP_OPTIONS
-    from partition.spark.affinity import edge_affinity_df
-    from partition.spark.checkpoint import Checkpoints
-    from partition.spark.hierarchy import COLLECT_EDGES, build_hierarchy_df
-    from partition.spark.io import collect_graph, node_weight_array
-    from partition.spark.order import linear_order_df
-    from partition.spark.refine import UNIT_STEPS, spark_fm, spark_swaps, spark_window
-    from partition.spark.session import describe
+    from partition.pipeline import Clock, run_plan
 
-    k = check_parts(k, sg.n)
-    eps = check_imbalance(eps)
-    if mode not in MODES:
-        raise ParameterError(f"mode must be one of {', '.join(MODES)}, got {mode!r}")
-    if affinity not in AFFINITIES or linkage not in LINKAGES:
-        raise ParameterError(f"unknown affinity {affinity!r} or linkage {linkage!r}")
-    if affinity == "weights" and not sg.weighted:
-        raise ParameterError("affinity 'weights' needs a weighted graph")
+    plan = plan.for_graph(sg.n, sg.m, sg.weighted)
+    if plan.mode == "full":
+        return _full_on_driver(sg, plan, progress)
     fm_opts = _fm_options(STEP_OPTIONS)
     # a shuffle partition per EDGES_PER_SHUFFLE_PARTITION edges at least (the session's count is the floor):
     # with 4 partitions a 64 M-edge join ran out of execution memory in a 4 GiB local driver
     base = int(spark.conf.get("spark.sql.shuffle.partitions"))
     spark.conf.set("spark.sql.shuffle.partitions", str(max(base, -(-sg.m // EDGES_PER_SHUFFLE_PARTITION))))
-    collect_edges = COLLECT_EDGES if collect_edges is None else int(collect_edges)
-    if work_dir is None:
-        work_dir = tempfile.mkdtemp(prefix="shardline-spark-")
-    work_dir = Path(work_dir)
-    options = {"k": k, "eps": eps, "seed": int(seed), "affinity": affinity, "linkage": linkage,
-               "hub_cap": int(hub_cap), "mode": mode, "n": sg.n, "m": sg.m, "source": sg.source}
-    ck = Checkpoints(work_dir, options, resume)
-    rows = []
-
-    def stage(name, t, **info):
-        row = {"stage": name, "seconds": round(time.perf_counter() - t, 4), **info}
-        rows.append(row)
-        if progress is not None:
-            progress(row)
-
-    starts, steps = _distributed_plan(starts, refine) if mode == "distributed" else (starts, refine)
-    nweights = node_weight_array(sg)
-    rule = balance_rule(nweights, k, eps, n_nodes=sg.n)
-    nw_ones = np.ones(sg.n, dtype=np.int64) if nweights is None else nweights
-    driver_graph = []
-
-    def graph():
-        if not driver_graph:
-            driver_graph.append(collect_graph(sg))
-        return driver_graph[0]
-
-    if progress is not None and mode == "distributed":  # the plan, for progress bars
-        progress({"plan": ["affinity", "hierarchy", "orders", *steps]})
-    if mode == "full":
-        return _full_on_driver(graph(), sg, k, eps, seed, affinity, linkage, hub_cap, rule, nw_ones, rows, stage,
-                               starts, steps)
+    work_dir = Path(tempfile.mkdtemp(prefix="shardline-spark-") if work_dir is None else work_dir)
+    backend = SparkBackend(spark, sg, plan, work_dir, resume, progress, fm_opts)
+    clock = Clock(progress)
     t = time.perf_counter()
-    describe(spark, "affinity")
-    aff = edge_affinity_df(sg, affinity, hub_cap=hub_cap)
-    stage("affinity", t, method=affinity)
-    t = time.perf_counter()
-    h = build_hierarchy_df(spark, aff, sg.n, seed=seed, linkage=linkage, work=work_dir, resume=resume,
-                           collect_edges=collect_edges, progress=progress)
-    stage("hierarchy", t, rounds=h.rounds, clusters=[int(x) for x in h.sizes], edges=[int(x) for x in h.edges])
-
-    t = time.perf_counter()
-    blocks = _Blocks(spark, sg)
-    blocks("cut")
-    stage("edge blocks", t)
-    best, start_rows = None, []
-    for name in starts:
-        t = time.perf_counter()
-        key = f"{name}-order"
-        if ck.has(key):
-            order = ck.load(key)[0]["order"]
-        elif name == "hierarchy":
-            order = linear_order_df(spark, h, sg.edges, blocks=blocks("cut"))
-        else:
-            from partition.embedding import spectral_order
-
-            order = spectral_order(graph(), seed=seed)
-        ck.save(key, {"order": order})
-        stage(f"{name}: order", t)
-        t = time.perf_counter()
-        parts = np.asarray(line_cut(order, nweights, k, eps), dtype=np.int64)
-        stage(f"{name}: line cut", t)
-        raw = blocks("cut").cut_total(parts)
-        for step in steps:
-            t = time.perf_counter()
-            key = f"{name}-{step}"
-            if ck.has(key):
-                parts = ck.load(key)[0]["parts"]
-            elif step == "window":
-                parts = spark_window(spark, sg, order, parts, rule, nweights, progress=progress,
-                                     blocks=blocks("cut"))
-            elif step == "fm":
-                parts = spark_fm(spark, sg, parts, rule, nw_ones, seed=seed, progress=progress, blocks=blocks("fm"),
-                                 **fm_opts)
-            elif step == "swaps":
-                parts = spark_swaps(spark, sg, parts, rule, nweights, progress=progress, blocks=blocks("cut"))
-            else:  # not unit based: on the driver with the in-memory step
-                from partition.partitioner import refine_step
-
-                parts = refine_step(step, graph(), order, parts, k, rule, h, seed)
-            parts = np.asarray(parts, dtype=np.int64)
-            ck.save(key, {"parts": parts})
-            stage(f"{name}: {step}", t, where="spark" if step in UNIT_STEPS else "driver")
-        final = blocks("cut").cut_total(parts)
-        start_rows.append({"start": name, "raw_cut": raw, "cut": final})
-        if best is None or final < best[0]:
-            best = (final, name, parts, order)
-    blocks.release()
-    final, chosen, parts, order = best
-    loads = np.bincount(parts, weights=nw_ones, minlength=k)
-    report = {
-        "engine": "spark",
-        "mode": mode,
-        "k": k,
-        "imbalance_allowed": eps,
-        "seed": int(seed),
-        "options": {"affinity": affinity, "linkage": linkage, "hub_cap": int(hub_cap),
-                    "starts": list(starts), "refine": list(steps), "collect_edges": collect_edges},
-        "graph": {"nodes": sg.n, "edges": sg.m, "source": sg.source},
-        "balance": {"cap": int(rule.cap), "floor": int(rule.floor), "exact": bool(rule.exact),
-                    "balanced": bool(rule.check(loads)), "max_load": int(loads.max())},
-        "hierarchy": {"rounds": h.rounds, "clusters": [int(x) for x in h.sizes], "edges": [int(x) for x in h.edges]},
-        "starts": start_rows,
-        "chosen_start": chosen,
-        "cut": int(final),
-        "cut_fraction": round(final / sg.m, 6) if sg.m and not sg.weighted else None,
-        "stages": rows,
-        "seconds": round(sum(r["seconds"] for r in rows), 4),
-    }
+    backend.blocks("cut")
+    clock.stage("edge blocks", time.perf_counter() - t)
+    try:
+        parts, order, _, report = run_plan(plan, backend, progress, clock)
+    finally:
+        backend.blocks.release()
+    report.update({"mode": plan.mode, "graph": {"nodes": sg.n, "edges": sg.m, "source": sg.source}})
+    report["options"]["collect_edges"] = plan.collect_edges
     return parts, order, report
 
 
-def _distributed_plan(starts, refine):
-    """Starts and steps of the distributed mode (see :func:`partition_spark`)."""
-    from partition.partitioner import resolve_refine
-    from partition.spark.refine import UNIT_STEPS
-
-    if starts in (None, "auto"):
-        starts = ("hierarchy",)
-    elif isinstance(starts, str):
-        starts = tuple(s.strip() for s in starts.split(",") if s.strip())
-    if not starts or any(s not in DISTRIBUTED_STARTS for s in starts) or len(set(starts)) != len(starts):
-        raise ParameterError(f"the distributed mode takes the starts {', '.join(DISTRIBUTED_STARTS)} (once each), "
-                             f"got {starts!r}; --mode full runs every start on the driver")
-    steps = UNIT_STEPS if refine in (None, "default") else resolve_refine(refine)
-    return tuple(starts), tuple(steps)
-
-
-def _full_on_driver(g, sg, k, eps, seed, affinity, linkage, hub_cap, rule, nw_ones, rows, stage, starts="auto",
-                    refine="default"):
-    """The full plan on the driver (the graph is collected): :func:`partition_graph` itself."""
-    from partition.partitioner import partition_graph
+def _full_on_driver(sg, plan, progress):
+    """The full plan on the driver (the graph is collected): the in-memory engine itself."""
+    from partition.partitioner import run_memory
+    from partition.spark.io import collect_graph
 
     t = time.perf_counter()
-    res = partition_graph(g, k, eps, seed, affinity=affinity, linkage=linkage, hub_cap=hub_cap, starts=starts,
-                          refine=refine)
-    stage("full plan on the driver", t, where="driver")
-    parts = np.asarray(res.parts, dtype=np.int64)
-    loads = np.bincount(parts, weights=nw_ones, minlength=k)
+    g = collect_graph(sg)
+    collect = {"stage": "collect graph", "seconds": round(time.perf_counter() - t, 4), "where": "driver"}
+    res = run_memory(g, replace(plan, engine="memory"), progress)
     report = dict(res.report)
     report.update({
         "engine": "spark", "mode": "full", "where": "driver",
         "graph": {"nodes": sg.n, "edges": sg.m, "source": sg.source},
-        "balance": {"cap": int(rule.cap), "floor": int(rule.floor), "exact": bool(rule.exact),
-                    "balanced": bool(rule.check(loads)), "max_load": int(loads.max())},
-        "stages": rows + [dict(r, where="driver") for r in res.report.get("stages", [])],
+        "stages": [collect] + [dict(r, where="driver") for r in res.report.get("stages", [])],
     })
-    from partition.refine.gains import cut_total, cut_weights
-
-    report["cut"] = int(cut_total(g.indptr, g.indices, cut_weights(g.edge_weights)[0], parts))
-    report["cut_fraction"] = round(report["cut"] / sg.m, 6) if sg.m and not sg.weighted else None
-    report["seconds"] = round(sum(r["seconds"] for r in rows) + res.report.get("seconds", 0.0), 4)
-    return parts, np.asarray(res.order, dtype=np.int64), report
+    report["seconds"] = round(report["seconds"] + collect["seconds"], 4)
+    return res.parts, res.order, report
 
 
-def run_spark(graph_path, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum", hub_cap=DEFAULT_HUB_CAP,
-              mode="distributed", fmt="auto", weighted=False, node_weights=None, allow_isolated=False,
-              master=None, output=None, output_format="parquet", report=None, work_dir=None, resume=False,
-              collect_edges=None, progress=None, spark=None, source_column=None, target_column=None,
-              weight_column=None, header=None, delimiter=None, order_output=None, starts="auto",
-              refine="default"):
+def run_spark(graph_path, plan, read=None, *, output=None, output_format="parquet", order_output=None, report=None,
+              work_dir=None, resume=False, master=None, spark=None, progress=None):
     """Run the Spark engine end to end on an edge list; returns the report dict.
 
     Parameters
     ----------
     graph_path : str
         Edge list (text or Parquet; any path Spark reads).
-    k, eps, seed, affinity, linkage, hub_cap, mode, starts, refine
-        As :func:`partition_spark`.
-    fmt, weighted, node_weights, allow_isolated, source_column, target_column, weight_column, header, delimiter
-        Input options (:func:`partition.spark.io.read_graph_df`).
-    master : str or None
-        Spark master URL (default ``local[2]`` unless set by ``spark-submit``).
+    plan : partition.plan.Plan
+        What to do (:func:`partition.plan.make_plan`, ``engine="spark"``).
+    read : dict or None
+        Input options of :func:`partition.spark.io.read_graph_df` (``fmt``,
+        ``weighted``, ``node_weights``, ``allow_isolated``, ``source_column``,
+        ``target_column``, ``weight_column``, ``header``, ``delimiter``).
     output : str or None
         Folder for the ``id, shard`` table (written atomically).
+    output_format : {"parquet", "csv"}
     order_output : str or None
         Folder for the ``node, position`` table of the linear order
         (:func:`partition.spark.tables.write_order`), the input of a later re-cut.
-    output_format : {"parquet", "csv"}
     report : str or None
         JSON report path (written atomically).
     work_dir : str or None
         Checkpoints; required for ``resume``.
     resume : bool
         Continue an interrupted run from its checkpoints under ``work_dir``.
-    collect_edges : int or None
-        See :func:`partition_spark`.
-    progress : callable or None
-        Called with one dict per stage and hierarchy round.
+    master : str or None
+        Spark master URL (default ``local[2]`` unless set by ``spark-submit``).
     spark : SparkSession or None
         Use this session instead of building one.
+    progress : callable or None
+        Called with one dict per stage and hierarchy round.
 
     Returns
     -------
@@ -390,29 +329,20 @@ def run_spark(graph_path, k, eps=0.0, seed=0, affinity="jaccard", linkage="sum",
     spark = spark or spark_session(master=master, work_dir=work_dir)
     t = time.perf_counter()
     describe(spark, "read")
-    sg = read_graph_df(spark, graph_path, fmt=fmt, weighted=weighted, node_weights=node_weights,
-                       allow_isolated=allow_isolated, source_column=source_column, target_column=target_column,
-                       weight_column=weight_column, header=header, delimiter=delimiter)
+    sg = read_graph_df(spark, graph_path, **(read or {}))
     read_row = {"stage": "read", "seconds": round(time.perf_counter() - t, 4), "nodes": sg.n, "edges": sg.m}
     if progress is not None:
         progress(read_row)
-    parts, order, rep = partition_spark(spark, sg, k, eps, seed, affinity, linkage, hub_cap, mode,
-                                        work_dir=work_dir, resume=resume, collect_edges=collect_edges,
-                                        progress=progress, starts=starts, refine=refine)
+    parts, order, rep = partition_spark(spark, sg, plan, work_dir=work_dir, resume=resume, progress=progress)
     rep["stages"].insert(0, read_row)
     rep["seconds"] = round(rep["seconds"] + read_row["seconds"], 4)
     describe(spark, "result figures")
     rep["tool"] = f"shardline {__version__}"
-    rep["imbalance_allowed"] = rep.get("imbalance_allowed", eps)
     rep["input"] = {"graph": str(graph_path), "nodes": sg.n, "edges": sg.m, "weighted_edges": sg.weighted,
                     "weighted_nodes": sg.node_weights is not None,
                     # a checksum where the driver can read the file (local disk or shared mount)
                     "sha256": file_sha256(graph_path) if os.path.isfile(graph_path) else None}
-    rep["result"] = result_figures(spark, sg, parts, k)
-    total = rep["result"]["total_edge_weight"] or 1.0
-    for row in rep.get("starts") or []:  # the in-memory report's start figures, from the weights
-        if "raw_cut_fraction" not in row and "raw_cut" in row:
-            row["raw_cut_fraction"], row["cut_fraction"] = row["raw_cut"] / total, row["cut"] / total
+    rep["result"] = result_figures(spark, sg, parts, plan.k)
     if output is not None:
         describe(spark, "write")
         write_assignment(spark, sg, parts, output, output_format)

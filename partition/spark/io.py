@@ -295,7 +295,8 @@ def read_graph_df(spark, path, fmt="auto", weighted=False, source_column=None, t
     source_column, target_column, weight_column : str or None
         CSV/TSV/Parquet column names (default: the first two, then the third).
     node_weights : str or None
-        Text file of ``id weight`` rows (non-negative integers).
+        Text file of ``id weight`` rows (non-negative integers), or a Parquet
+        table with the columns ``id`` and ``weight``.
     allow_isolated : bool
         Ids of the node-weights file without edges become isolated nodes.
     header : bool or None
@@ -363,7 +364,16 @@ def read_graph_df(spark, path, fmt="auto", weighted=False, source_column=None, t
     raw = raw.drop("key").localCheckpoint()
 
     nw = None
-    if node_weights is not None:
+    if node_weights is not None and detect_format(node_weights) == "parquet":  # a table of id, weight
+        nws = _Source(spark, node_weights, "parquet")
+        tab = nws.read()
+        if "id" not in tab.columns or "weight" not in tab.columns:
+            raise InputError(node_weights, f"a node-weights table needs the columns id and weight "
+                                           f"(columns: {', '.join(c for c in tab.columns if c != 'key')})")
+        nw = tab.select(F.col("id").cast("string").alias("s"), F.col("weight").cast("double").alias("wt"), "key")
+        _weights_ok(nws, nw, "wt", "node weight", integer=True)
+        nw = nw.localCheckpoint()
+    elif node_weights is not None:
         nws = _Source(spark, node_weights)
         nwf = _text_fields(nws, 2)
         nw = nwf.select(F.col("f")[0].alias("s"), F.expr("try_cast(f[1] as double)").alias("wt"), "key")

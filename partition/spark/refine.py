@@ -1,30 +1,29 @@
-"""Refinement on Spark: the in-memory steps' rounds, each unit in a Spark task.
+"""Refinement on Spark: the units of the in-memory steps, each in a Spark task.
 
-Each step runs the same rounds as its in-memory driver and feeds the same
-numba kernels the same arrays, so the result is identical:
+The loops over rounds are :mod:`partition.refine.rounds`, the same drivers the
+in-memory steps run; this module supplies their two bulk operations over the
+edge blocks (:class:`~partition.spark.blocks.EdgeBlocks`: the edges packed
+once into cached numpy blocks, the shard array broadcast each round) and feeds
+the same numba kernels the same arrays, so the result is identical:
 
-``window`` (:func:`partition.refine.window_dp.refine_window`)
-    Every round frees the boundaries of :func:`~partition.refine.window_dp.free_mask`;
-    each chain of free boundaries is a unit: a task gets the line edges with
-    both ends between the chain's fixed neighbours (one shuffle of the edge blocks) and runs
-    :func:`~partition.refine.window_dp.window_dp_round` on that stretch of the
-    line, shifted to start at 0 (windows and tables shift with it).
+``window`` (:func:`partition.refine.window_dp.refine_window`, ``chain_length=1``)
+    Each chain of free boundaries is a unit: a task gets the line edges with
+    both ends between the chain's fixed neighbours (one shuffle of the edge
+    blocks) and runs :func:`~partition.refine.window_dp.window_dp_round` on
+    that stretch of the line, shifted to start at 0 (windows and tables shift
+    with it).
 ``fm`` (:func:`partition.refine.fm.refine_fm`, schedule ``matched``)
     and ``swaps`` (:func:`partition.refine.swaps.refine_swaps`, ``matched``).
-    The edges are packed once into cached numpy blocks
-    (:class:`~partition.spark.blocks.EdgeBlocks`); each round the shard array is
-    broadcast. The start-of-round shard cut matrix is one job over the blocks;
-    the driver takes the greedy matching and the settled/stale bookkeeping; each
-    shard pair is a unit: one shuffle brings every directed edge leaving the
-    pair's nodes to the unit's task, which renumbers the nodes it sees in
-    increasing id order (a monotone map, so every "smaller node first" tie rule
-    is kept) and calls :func:`~partition.refine.fm.fm_pair` or
+    The start-of-round shard cut matrix is one job over the blocks; each shard
+    pair is a unit: one shuffle brings every directed edge leaving the pair's
+    nodes to the unit's task, which renumbers the nodes it sees in increasing
+    id order (a monotone map, so every "smaller node first" tie rule is kept)
+    and calls :func:`~partition.refine.fm.fm_pair` or
     :func:`~partition.refine.swaps.swap_pair`.
 
 The driver holds O(n) arrays (positions, shards); the edges stay in Spark.
-Unit weights only for edges here: a weighted graph's integer weights depend on
-whole-graph tests (integrality, totals) that the engine reproduces by
-aggregates (:func:`int_weights`).
+A weighted graph's integer weights depend on whole-graph tests (integrality,
+totals) that the engine reproduces by aggregates (:func:`int_weights`).
 """
 
 from __future__ import annotations
@@ -35,17 +34,15 @@ import numpy as np
 from partition.cut import boundaries_from_parts, parts_from_boundaries
 from partition.errors import ParameterError
 from partition.refine.fm import fm_pair
-from partition.refine.schedule import matched_pairs
+from partition.refine.rounds import pair_rounds, swap_rounds, window_rounds
 from partition.refine.swaps import swap_pair
-from partition.refine.units import settle
-from partition.refine.window_dp import default_window, free_mask, window_dp_round
+from partition.refine.window_dp import default_window, window_dp_round
 from partition.rules import AFFINITY_SCALE
 from partition.spark.blocks import group_chunks
 from partition.spark.session import describe
 
-__all__ = ["int_weights", "edge_blocks", "spark_window", "spark_fm", "spark_swaps", "UNIT_STEPS"]
+__all__ = ["int_weights", "edge_blocks", "spark_window", "spark_fm", "spark_swaps"]
 
-UNIT_STEPS = ("window", "fm", "swaps")
 _EMPTY = np.empty(0, dtype=np.int64)
 
 
@@ -166,13 +163,36 @@ def _line_split(u, v, w, a):
     yield from group_chunks(key, p, q, w)
 
 
-def _apply(blocks, parts, nw, pairs, kernel):
-    """One round of units: ``(units, nodes, shards, gains)`` concatenated over the pairs."""
-    res = blocks.unit_round(parts, nw, pairs, kernel)
-    units = np.concatenate([np.full(r[1].shape[0], r[0], dtype=np.int64) for r in res] or [_EMPTY])
-    nodes = np.concatenate([r[1] for r in res] or [_EMPTY])
-    shards = np.concatenate([r[2] for r in res] or [_EMPTY])
-    return units, nodes, shards, [r[3] for r in res]
+def _pair_units(spark, blocks, nw, solve, step):
+    """One round of shard-pair units for the drivers of :mod:`partition.refine.rounds`, each pair a Spark task.
+
+    ``solve(a, b, *sides)`` gets the unit's local graph (:func:`_sides`) and
+    returns the global ids it placed, their shards and the gain. The returned
+    ``run_round(parts, pairs)`` gives the new shards, the gains, and per pair
+    whether a node changed shard and how many nodes the unit placed.
+    """
+    pairs_now = []
+
+    def kernel(unit, gn, ex, ey, w, shard, weight):
+        a, b = pairs_now[unit]
+        if gn.shape[0] == 0:
+            return _EMPTY, _EMPTY, 0
+        return solve(a, b, *_sides(a, b, gn, ex, ey, w, shard, weight))
+
+    def run_round(current, pairs):
+        describe(spark, f"refine {step}: a round of shard pairs")
+        pairs_now[:] = pairs
+        res = blocks.unit_round(current, nw, pairs, kernel)
+        units = np.concatenate([np.full(r[1].shape[0], r[0], dtype=np.int64) for r in res] or [_EMPTY])
+        nodes = np.concatenate([r[1] for r in res] or [_EMPTY])
+        new = np.concatenate([r[2] for r in res] or [_EMPTY])
+        changed = np.zeros(len(pairs), dtype=bool)
+        changed[np.unique(units[current[nodes] != new])] = True
+        current = current.copy()
+        current[nodes] = new
+        return current, [r[3] for r in res], changed.tolist(), np.bincount(units, minlength=len(pairs)).tolist()
+
+    return run_round
 
 
 def edge_blocks(spark, sg, kind):
@@ -219,46 +239,22 @@ def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, st
     blocks = edge_blocks(spark, sg, "fm") if own else blocks
     parts = np.asarray(parts, dtype=np.int64).copy()
     nw = np.asarray(nw, dtype=np.int64)
-    settled = np.zeros((k, k), dtype=bool)
 
-    def kernel(unit, gn, ex, ey, w, shard, weight):
-        a, b = pairs_now[unit]
-        if gn.shape[0] == 0:
-            return _EMPTY, _EMPTY, 0
-        ids, indptr, indices, lw, lp, lnw, la, lb = _sides(a, b, gn, ex, ey, w, shard, weight)
+    def solve(a, b, ids, indptr, indices, lw, lp, lnw, la, lb):
         mov = np.concatenate((la, lb))
         stall = max_stall if max_stall < 0 else max(int(max_stall), int(stall_fraction * mov.shape[0]))
         new, g = fm_pair(indptr, indices, lw, lnw, lp, a, b, mov, cap, cap, floor, floor, max_passes, stall)
         return ids[mov], new, g
 
-    low = 0
-    cm = None
-    pairs_now = []
+    units = _pair_units(spark, blocks, nw, solve, "fm")
+
+    def run_round(current, pairs):
+        current, gains, changed, _ = units(current, pairs)
+        return current, gains, changed
+
     try:
-        for r in range(k if max_rounds is None else int(max_rounds)):
-            describe(spark, f"refine fm: round {r + 1}")
-            if cm is None:  # the shards changed (or first round): a new start-of-round cut matrix
-                cm = blocks.cut_matrix(parts, k)
-            start_cut = int(cm.sum()) // 2
-            live = (cm > 0) & ~settled
-            if not live.any():
-                break
-            pairs = [(a, b) for a, b in matched_pairs(np.where(live, cm, 0)) if live[a, b]]
-            pairs_now[:] = pairs
-            units, nodes, new, gains = _apply(blocks, parts, nw, pairs, kernel)
-            changed = [False] * len(pairs)
-            diff = parts[nodes] != new
-            for u in np.unique(units[diff]):
-                changed[int(u)] = True
-            parts[nodes] = new
-            if diff.any():
-                cm = None
-            settle(settled, pairs, changed)
-            if progress is not None:
-                progress({"stage": f"fm round {r + 1}", "pairs": len(pairs), "changed": int(sum(changed))})
-            low = low + 1 if tol > 0 and sum(gains) <= tol * start_cut else 0
-            if low >= 2:
-                break
+        parts, _ = pair_rounds(parts, k, lambda p: blocks.cut_matrix(p, k), run_round, "matched", max_rounds,
+                               seed, tol, on_round=_report(progress, "fm"))
     finally:
         if own:
             blocks.release()
@@ -299,13 +295,8 @@ def spark_swaps(spark, sg, parts, rule, node_weights, max_rounds=20, tol=1e-3, i
     unit_w = blocks.unit_w
     parts = np.asarray(parts, dtype=np.int64).copy()
     nw = np.ones(parts.shape[0], dtype=np.int64) if node_weights is None else np.asarray(node_weights, np.int64)
-    pairs_now = []
 
-    def kernel(unit, gn, ex, ey, w, shard, weight):
-        a, b = pairs_now[unit]
-        if gn.shape[0] == 0:
-            return _EMPTY, _EMPTY, 0
-        ids, indptr, indices, lw, lp, lnw, la, lb = _sides(a, b, gn, ex, ey, w, shard, weight)
+    def solve(a, b, ids, indptr, indices, lw, lp, lnw, la, lb):
         rank = np.zeros(ids.shape[0], dtype=np.int64)
         rank[la] = np.arange(la.shape[0])
         rank[lb] = np.arange(lb.shape[0])
@@ -313,34 +304,15 @@ def spark_swaps(spark, sg, parts, rule, node_weights, max_rounds=20, tol=1e-3, i
                                      _EMPTY if node_weights is None else lnw, a, b, la, lb, cap, floor, iterations)
         return ids[moved], target, g
 
+    units = _pair_units(spark, blocks, nw, solve, "swaps")
+
+    def run_round(current, pairs):
+        current, gains, _, moved = units(current, pairs)
+        return current, gains, moved
+
     try:
-        cm = blocks.cut_matrix(parts, k)
-        cut = int(cm.sum()) // 2
-        stale = np.zeros((k, k), dtype=bool)
-        rounds = 0
-        while rounds < max_rounds and cut > 0 and k > 1:
-            describe(spark, f"refine swaps: round {rounds + 1}")
-            mat = cm
-            pairs = matched_pairs(np.where(stale, 0, mat))
-            if not pairs:
-                break
-            pairs_now[:] = pairs
-            units, nodes, new, gains = _apply(blocks, parts, nw, pairs, kernel)
-            moved = np.bincount(units, minlength=len(pairs)).tolist()
-            parts[nodes] = new
-            cut -= sum(gains)
-            rounds += 1
-            for (a, b), mv in zip(pairs, moved):
-                if mv:
-                    stale[[a, b], :] = False
-                    stale[:, [a, b]] = False
-            for (a, b), g in zip(pairs, gains):
-                if g <= tol * mat[a, b]:
-                    stale[a, b] = stale[b, a] = True
-            if progress is not None:
-                progress({"stage": f"swaps round {rounds}", "pairs": len(pairs), "gain": int(sum(gains))})
-            if rounds < max_rounds and cut > 0 and any(moved):  # unchanged shards: same matrix
-                cm = blocks.cut_matrix(parts, k)
+        parts, _ = swap_rounds(parts, k, None, lambda p: blocks.cut_matrix(p, k), run_round, "matched", max_rounds,
+                               tol, on_round=_report(progress, "swaps"))
     finally:
         if own:
             blocks.release()
@@ -400,7 +372,7 @@ def spark_window(spark, sg, order, parts, rule, node_weights, w=None, max_rounds
         out, g = window_dp_round(p[o] - left, q[o] - left, _EMPTY if unit_w else ew[o],
                                  prefix[left:right + 1], bb[js] - left, np.ones(js.shape[0], dtype=bool),
                                  w, cap, floor)
-        return js, out + left
+        return js, out + left, g
 
     def run(c, chunks, a):
         p = np.concatenate([x[0] for x in chunks]).astype(np.int64)
@@ -408,28 +380,32 @@ def spark_window(spark, sg, order, parts, rule, node_weights, w=None, max_rounds
         ew = _EMPTY if unit_w else np.concatenate([x[2] for x in chunks]).astype(np.int64)
         return solve(c, p, q, ew, a["full"], a["fixed"], a["b"])
 
-    idle = 0
+    def run_round(b, free):
+        describe(spark, "refine window: a round of boundary chains")
+        full = np.concatenate(([0], b, [n]))
+        fixed = np.concatenate(([0], np.flatnonzero(~free) + 1, [k]))
+        fpos = full[fixed]
+        is_chain = np.append(np.diff(fixed) >= 2, False)
+        res = blocks.route(_line_split, run, fpos.shape[0], pos=pos, fpos=fpos, is_chain=is_chain,
+                           full=full, fixed=fixed, b=b)
+        nb, gain = b.copy(), 0
+        for c in np.flatnonzero(is_chain[:-1]):  # chains without any edge: solved on the driver
+            js, out, g = res[int(c)] if int(c) in res else solve(int(c), _EMPTY, _EMPTY, _EMPTY, full, fixed, b)
+            nb[js] = out
+            gain += g
+        return nb, gain
+
     try:
-        for r in range(max_rounds if k > 1 else 0):
-            describe(spark, f"refine window: round {r + 1}")
-            free = free_mask(k, r, 1)
-            full = np.concatenate(([0], b, [n]))
-            fixed = np.concatenate(([0], np.flatnonzero(~free) + 1, [k]))
-            fpos = full[fixed]
-            is_chain = np.append(np.diff(fixed) >= 2, False)
-            res = blocks.route(_line_split, run, fpos.shape[0], pos=pos, fpos=fpos, is_chain=is_chain,
-                               full=full, fixed=fixed, b=b)
-            nb = b.copy()
-            for c in np.flatnonzero(is_chain[:-1]):  # chains without any edge: solved on the driver
-                js, out = res[int(c)] if int(c) in res else solve(int(c), _EMPTY, _EMPTY, _EMPTY, full, fixed, b)
-                nb[js] = out
-            idle = idle + 1 if np.array_equal(nb, b) else 0
-            b = nb
-            if progress is not None:
-                progress({"stage": f"window round {r + 1}", "moved": int(np.count_nonzero(nb != full[1:-1]))})
-            if idle >= 2:
-                break
+        b, _ = window_rounds(b, k, run_round, 1, max_rounds, on_round=_report(progress, "window"))
     finally:
         if own:
             blocks.release()
     return np.asarray(parts_from_boundaries(order, b, k), dtype=np.int64)
+
+
+def _report(progress, step):
+    """The drivers' per-round dict as a progress row of the step (``None`` when nobody listens)."""
+    if progress is None:
+        return None
+    return lambda row: progress({"stage": f"{step} round {row['round']}",
+                                 **{k: v for k, v in row.items() if k != "round"}})
