@@ -26,6 +26,8 @@ from partition.baselines.streaming import fennel, fennel_alpha, ldg, stream_orde
 from partition.errors import ParameterError
 from partition.graph import build_graph
 
+from conftest import nx_cut  # noqa: E402
+
 SHARED = Path(__file__).resolve().parents[2] / "shared" / "datasets"
 DATASETS = sorted(p.name for p in SHARED.glob("*.txt*")) if SHARED.is_dir() else []
 needs_shared = pytest.mark.skipif(not DATASETS, reason=f"public graphs not found in {SHARED}")
@@ -54,23 +56,6 @@ def assert_valid(graph, parts, k, eps):
     rule = balance_rule(graph.node_weights, k, eps, graph.n)
     loads = loads_of(graph, parts, k)
     assert rule.check(loads), rule.violations(loads)[:5]
-
-
-def nx_graph(graph):
-    g = nx.Graph()
-    g.add_nodes_from(range(graph.n))
-    u, v, _ = graph.edges()
-    g.add_edges_from(zip(u.tolist(), v.tolist()))
-    return g
-
-
-def nx_cut(g, parts, k):
-    """Cut edges counted by networkx: half the sum over shards of cut_size(S, rest)."""
-    total = 0
-    for s in range(k):
-        members = set(np.flatnonzero(parts == s).tolist())
-        total += nx.cut_size(g, members)
-    return total // 2
 
 
 # ---------------------------------------------------------------------------
@@ -146,7 +131,7 @@ def test_ldg_splits_two_disjoint_cliques_with_zero_cut():
     graph = build_graph(u, v)
     parts = ldg(graph, 2, 0.0, seed=0, order="bfs")
     np.testing.assert_array_equal(parts, [0] * 8 + [1] * 8)
-    assert nx_cut(g, parts, 2) == 0  # networkx cut_size: zero cut edges
+    assert nx_cut(g, parts, 2, weight=None) == 0  # networkx cut_size: zero cut edges
 
 
 @pytest.mark.parametrize("seed", [1, 2, 3])
@@ -159,10 +144,10 @@ def test_label_propagation_recovers_a_planted_partition(seed):
     graph = build_graph(u, v, node_ids=np.arange(100), node_weights=np.ones(100, dtype=np.int64))
     graph.node_weights = None
     planted = np.repeat(np.arange(4), 25)
-    planted_cut = nx_cut(g, planted, 4)
+    planted_cut = nx_cut(g, planted, 4, weight=None)
     parts = label_propagation(graph, 4, 0.0, seed=seed)
     assert_valid(graph, parts, 4, 0.0)
-    assert nx_cut(g, parts, 4) <= planted_cut
+    assert nx_cut(g, parts, 4, weight=None) <= planted_cut
 
 
 @needs_shared

@@ -17,6 +17,8 @@ from partition.generators import grid2d, planted_partition
 from partition.graph import build_graph
 from partition.placement.stable import anchored_graph, move_objective, stabilise
 
+from conftest import nx_cut, nx_graph  # noqa: E402
+
 SETTINGS = settings(max_examples=30, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 
 
@@ -30,15 +32,6 @@ def _random_graph(n, p, seed, weighted=False):
     if weighted:
         w = np.concatenate((rng.integers(1, 5, src.shape[0]).astype(np.float64), np.ones(n)))
     return build_graph(np.concatenate((src, loops)), np.concatenate((dst, loops)), weights=w)
-
-
-def _nx_cut(g, parts, k):
-    # k-way cut recounted with networkx (each cut edge is in the boundary of two shards)
-    G = nx.Graph()
-    G.add_nodes_from(range(g.n))
-    u, v, w = g.edges()
-    G.add_weighted_edges_from(zip(u.tolist(), v.tolist(), w.tolist()))
-    return sum(nx.cut_size(G, set(np.flatnonzero(parts == s).tolist()), weight="weight") for s in range(k)) / 2
 
 
 @SETTINGS
@@ -81,7 +74,7 @@ def test_stabilise_never_breaks_balance(k, dk, eps, lam, weighted, seed):
     loads = np.bincount(parts, minlength=k)
     assert rule.check(loads), rule.violations(loads)
     assert stats["balanced"]
-    assert stats["cut_after"] == pytest.approx(_nx_cut(g, parts, k))
+    assert stats["cut_after"] == pytest.approx(nx_cut(nx_graph(g), parts, k))
     # the rounds lower cut + λ·moved (exact: λ is a multiple of 2**-16)
     assert stats["objective_after"] <= stats["objective_before"] + 1e-9
     assert stats["objective_after"] == pytest.approx(move_objective(g, parts, old, lam))
@@ -136,7 +129,7 @@ def test_anchored_graph_cut_is_cut_plus_move_cost():
         for e in range(indptr[u], indptr[u + 1]):
             G.add_edge(u, int(indices[e]), weight=int(weights[e]))
     aug = np.concatenate((parts, np.arange(3)))
-    cut = sum(nx.cut_size(G, set(np.flatnonzero(aug == s).tolist()), weight="weight") for s in range(3)) / 2
+    cut = nx_cut(G, aug, 3)
     assert cut / unit == pytest.approx(move_objective(g, parts, old, lam))
     assert G.number_of_edges() == g.m + g.n  # one anchor edge per node
 
