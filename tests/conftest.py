@@ -14,6 +14,12 @@ SHARED = Path(__file__).resolve().parents[2] / "shared" / "datasets"
 SHARED_MISSING = f"the public graphs of {SHARED} are not present (they sit beside the repository, not in it)"
 
 
+def shared_missing(name):
+    """The skip reason for a test that needs ``SHARED / name``: SHARED_MISSING when
+    the folder is absent, else the one file that is."""
+    return SHARED_MISSING if not SHARED.is_dir() else f"{name} is not in {SHARED}"
+
+
 def shared_graph_rows():
     """``file → (nodes, undirected edges, sha256 prefix)`` from the graph table of CATALOG.md.
 

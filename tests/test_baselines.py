@@ -26,11 +26,11 @@ from partition.baselines.streaming import fennel, fennel_alpha, ldg, stream_orde
 from partition.errors import ParameterError
 from partition.graph import build_graph
 
-from conftest import nx_cut  # noqa: E402
+from conftest import SHARED_MISSING, nx_cut, shared_missing  # noqa: E402
 
 SHARED = Path(__file__).resolve().parents[2] / "shared" / "datasets"
 DATASETS = sorted(p.name for p in SHARED.glob("*.txt*")) if SHARED.is_dir() else []
-needs_shared = pytest.mark.skipif(not DATASETS, reason=f"public graphs not found in {SHARED}")
+needs_shared = pytest.mark.skipif(not DATASETS, reason=SHARED_MISSING)
 
 _CACHE = {}
 
@@ -155,7 +155,7 @@ def test_label_propagation_recovers_a_planted_partition(seed):
 def test_streaming_beats_random_on_the_3elt_mesh(k):
     # 3elt: Walshaw archive finite-element mesh (copy from SuiteSparse), 4720 nodes.
     if "3elt.txt.gz" not in DATASETS:
-        pytest.skip("3elt.txt.gz missing from the shared datasets")
+        pytest.skip(shared_missing("3elt.txt.gz"))
     graph = shared_graph("3elt.txt.gz")
     n = graph.n
     rnd = cut_weight(graph, random_partition(graph, k, 0.0, seed=0)) / graph.m
@@ -176,7 +176,7 @@ def test_streaming_beats_random_on_the_3elt_mesh(k):
 def test_label_propagation_never_worse_than_its_start(name):
     # 3elt: Walshaw mesh; email-Enron: SNAP (CATALOG.md)
     if name not in DATASETS:
-        pytest.skip(f"{name} missing from the shared datasets")
+        pytest.skip(shared_missing(name))
     graph = shared_graph(name)
     for k, eps in ((2, 0.0), (8, 0.03)):
         start = ldg(graph, k, eps, seed=4)
@@ -478,7 +478,7 @@ def _paper_rule(graph, k, eps, seq, method):
 def test_ldg_and_fennel_follow_their_papers_on_3elt(order):
     # 3elt: Walshaw archive finite-element mesh (4,720 nodes, 13,722 edges); k = 8, ε = 0.03.
     if "3elt.txt.gz" not in DATASETS:
-        pytest.skip("3elt.txt.gz missing from the shared datasets")
+        pytest.skip(shared_missing("3elt.txt.gz"))
     graph = shared_graph("3elt.txt.gz")
     seq = stream_order(graph, order, 0)
     got = {m: f(graph, 8, 0.03, seed=0, order=order) for m, f in (("ldg", ldg), ("fennel", fennel))}

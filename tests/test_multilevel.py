@@ -16,7 +16,7 @@ from partition.graph import build_graph
 from partition.refine.fm import refine_fm
 from partition.refine.multilevel import atom_levels, refine_multilevel
 
-from conftest import nx_cut, nx_graph  # noqa: E402
+from conftest import nx_cut, nx_graph, shared_missing  # noqa: E402
 
 DATASETS = Path(__file__).resolve().parents[2] / "shared" / "datasets"
 
@@ -123,7 +123,7 @@ def test_public_mesh_multilevel_beats_flat_refinement():
     # (cut edges / edges).
     path = DATASETS / "3elt.txt.gz"
     if not path.exists():
-        pytest.skip(f"public graph not found: {path}")
+        pytest.skip(shared_missing(path.name))
     data = np.loadtxt(path, dtype=np.int64, comments="#")
     g = build_graph(data[:, 0], data[:, 1])
     assert (g.n, g.m) == (4720, 13722)  # counts from CATALOG.md

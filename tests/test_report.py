@@ -24,7 +24,7 @@ import pytest
 from partition.cli import main
 from partition.errors import InputError, ShardlineError
 
-from conftest import nx_graph  # noqa: E402
+from conftest import nx_graph, shared_missing  # noqa: E402
 
 pytest.importorskip("matplotlib", reason="the report needs matplotlib: pip install 'shardline[report]'")
 
@@ -282,7 +282,7 @@ def test_every_published_figure_names_its_source_and_says_if_recalled():
 
 
 @pytest.mark.skipif(not (SHARED / "3elt.txt.gz").is_file(),
-                    reason="../shared/datasets/3elt.txt.gz (Walshaw archive mesh) is not beside the repository")
+                    reason=shared_missing("3elt.txt.gz"))
 def test_a_catalog_graph_gets_its_published_figures_in_score_and_report(tmp_path, capsys):
     graph = SHARED / "3elt.txt.gz"
     out = tmp_path / "k4.csv"

@@ -33,7 +33,7 @@ from partition.edgelist import read_graph
 from partition.generators import planted_partition
 from partition.score import score
 
-from conftest import nx_cut  # noqa: E402
+from conftest import SHARED_MISSING, nx_cut  # noqa: E402
 
 REPO = Path(__file__).resolve().parents[1]
 DEMO = REPO / "datasets" / "demo" / "larkspur-bay-rides.csv.gz"
@@ -351,7 +351,7 @@ _COUNTS = _catalog_counts()
 _LARGE = 100_000  # edges; larger graphs are marked slow (CI still runs them)
 
 
-@pytest.mark.skipif(not DATASETS, reason=f"public graphs not found in {SHARED}")
+@pytest.mark.skipif(not DATASETS, reason=SHARED_MISSING)
 @pytest.mark.parametrize("name", [pytest.param(n, marks=pytest.mark.slow) if _COUNTS.get(n, (0, 0))[1] > _LARGE else n
                                   for n in DATASETS])
 def test_shared_graph_k8_meets_the_balance_bound(capsys, tmp_path, name):

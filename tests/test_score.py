@@ -23,7 +23,7 @@ from partition.errors import ParameterError
 from partition.graph import build_graph
 from partition.score import CUT_PAIRS_LIMIT, DENSE_MATRIX_MAX_K, score
 
-from conftest import SHARED, nx_cut, shared_graph_rows  # noqa: E402
+from conftest import SHARED, nx_cut, shared_graph_rows, shared_missing  # noqa: E402
 
 
 # --- helpers: the graph both ways, and networkx recounts -------------------
@@ -316,7 +316,7 @@ _LARGE = 100_000  # edges; larger graphs are marked slow and scored at k = 2
 _COUNTS = _catalog() if (SHARED / "CATALOG.md").exists() else {}
 
 
-@pytest.mark.skipif(not _COUNTS, reason="../shared/datasets (with CATALOG.md) is not present")
+@pytest.mark.skipif(not _COUNTS, reason=shared_missing("CATALOG.md"))
 @pytest.mark.parametrize(
     "name",
     [pytest.param(f, marks=pytest.mark.slow) if m > _LARGE else f for f, (_, m) in sorted(_COUNTS.items())]

@@ -18,7 +18,7 @@ from partition.refine import schedule
 from partition.refine.gains import cut_total, cut_weights, local_index, pair_gains, shard_cut_matrix
 from partition.refine.swaps import refine_swaps, swap_pair, swap_round
 
-from conftest import nx_cut, nx_graph  # noqa: E402
+from conftest import nx_cut, nx_graph, shared_missing  # noqa: E402
 
 DATASETS = Path(__file__).resolve().parents[2] / "shared" / "datasets"
 _UNIT = np.empty(0, dtype=np.int64)
@@ -249,7 +249,7 @@ def test_bad_pairs_rejected():
 def _load_shared(name):
     path = DATASETS / name
     if not path.exists():
-        pytest.skip(f"shared dataset {path} is not available")
+        pytest.skip(shared_missing(path.name))
     data = np.loadtxt(path, comments="#", dtype=np.int64, ndmin=2)
     return build_graph(data[:, 0], data[:, 1], source=str(path))
 

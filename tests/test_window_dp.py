@@ -19,7 +19,7 @@ from partition.graph import build_graph
 from partition.refine.gains import cut_weights
 from partition.refine.window_dp import chain_dp, line_edges, refine_window, window_dp_round
 
-from conftest import nx_cut, nx_graph  # noqa: E402
+from conftest import nx_cut, nx_graph, shared_missing  # noqa: E402
 
 DATASETS = Path(__file__).resolve().parents[2] / "shared" / "datasets"
 
@@ -220,7 +220,7 @@ def test_3elt_cuthill_mckee_line():
     # Line order: reverse Cuthill–McKee from scipy (a bandwidth-reducing order; Cuthill & McKee 1969).
     path = DATASETS / "3elt.txt.gz"
     if not path.exists():
-        pytest.skip(f"shared dataset {path} is not available")
+        pytest.skip(shared_missing(path.name))
     data = np.loadtxt(path, comments="#", dtype=np.int64, ndmin=2)
     g = build_graph(data[:, 0], data[:, 1], source=str(path))
     assert (g.n, g.m) == (4720, 13722)  # counts from the shared CATALOG.md
