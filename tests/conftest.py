@@ -14,6 +14,12 @@ SHARED = Path(__file__).resolve().parents[2] / "shared" / "datasets"
 SHARED_MISSING = f"the public graphs of {SHARED} are not present (they sit beside the repository, not in it)"
 
 
+def shared_missing(name):
+    """The skip reason for a test that needs ``SHARED / name``: SHARED_MISSING when
+    the folder is absent, else the one file that is."""
+    return SHARED_MISSING if not SHARED.is_dir() else f"{name} is not in {SHARED}"
+
+
 def shared_graph_rows():
     """``file → (nodes, undirected edges, sha256 prefix)`` from the graph table of CATALOG.md.
 
@@ -31,6 +37,40 @@ def shared_graph_rows():
         if len(cells) == 7 and cells[3].isdigit() and cells[4].isdigit():
             rows[cells[0]] = (int(cells[3]), int(cells[4]), cells[6])
     return rows
+
+
+# The cut recounted by networkx, the outside reference for every cut figure.
+import networkx as nx  # noqa: E402
+
+
+def nx_graph(graph):
+    """A ``partition.graph.Graph`` as a weighted ``networkx.Graph``: nodes 0..n-1, each
+    undirected edge once with its weight under ``"weight"`` (1.0 when unweighted)."""
+    G = nx.Graph()
+    G.add_nodes_from(range(graph.n))
+    u, v, w = graph.edges()
+    G.add_weighted_edges_from(zip(u.tolist(), v.tolist(), w.tolist()))
+    return G
+
+
+def nx_cut(G, parts, k=None, weight="weight"):
+    """Total weight of the cut edges by ``networkx.cut_size``: half the sum, over the
+    shards S, of ``cut_size(G, S, weight=weight)`` (each cut edge leaves two shards).
+
+    ``parts`` gives every node of ``G`` its shard: an array indexed by node, or a
+    mapping node → shard. The shards are 0..k-1 when ``k`` is given (a shard outside
+    that range is an error), else the shards that occur. Every node must have a
+    shard, so the halved sum equals the sum over shard pairs of ``cut_size(G, S_a, S_b)``.
+    ``weight=None`` counts the cut edges.
+    """
+    shard_of = {v: int(parts[v]) for v in G}
+    shards = sorted(set(shard_of.values())) if k is None else range(k)
+    if k is not None:
+        assert all(0 <= s < k for s in shard_of.values()), "a shard outside 0..k-1"
+    blocks = {s: set() for s in shards}
+    for v, s in shard_of.items():
+        blocks[s].add(v)
+    return sum(nx.cut_size(G, blocks[s], weight=weight) for s in shards) / 2
 
 
 # Awkward ids for the id-fidelity tests (tests/test_ids.py, tests/test_spark_engine.py).

@@ -21,6 +21,8 @@ from partition.errors import ParameterError
 from partition.graph import build_graph
 from partition.rules import AFFINITY_SCALE
 
+from conftest import shared_missing  # noqa: E402
+
 DATASETS = Path(__file__).resolve().parents[2] / "shared" / "datasets"
 
 
@@ -209,7 +211,7 @@ def test_public_graph_common_neighbours():
     # networkx neighbour sets; triangle total from nx.triangles
     path = DATASETS / "email-Eu-core.txt.gz"
     if not path.exists():
-        pytest.skip(f"public dataset folder not found at {DATASETS}")
+        pytest.skip(shared_missing("email-Eu-core.txt.gz"))
     from partition.edgelist import read_graph
 
     g = read_graph(path)

@@ -26,9 +26,11 @@ from partition.baselines.streaming import fennel, fennel_alpha, ldg, stream_orde
 from partition.errors import ParameterError
 from partition.graph import build_graph
 
+from conftest import SHARED_MISSING, nx_cut, shared_missing  # noqa: E402
+
 SHARED = Path(__file__).resolve().parents[2] / "shared" / "datasets"
 DATASETS = sorted(p.name for p in SHARED.glob("*.txt*")) if SHARED.is_dir() else []
-needs_shared = pytest.mark.skipif(not DATASETS, reason=f"public graphs not found in {SHARED}")
+needs_shared = pytest.mark.skipif(not DATASETS, reason=SHARED_MISSING)
 
 _CACHE = {}
 
@@ -54,23 +56,6 @@ def assert_valid(graph, parts, k, eps):
     rule = balance_rule(graph.node_weights, k, eps, graph.n)
     loads = loads_of(graph, parts, k)
     assert rule.check(loads), rule.violations(loads)[:5]
-
-
-def nx_graph(graph):
-    g = nx.Graph()
-    g.add_nodes_from(range(graph.n))
-    u, v, _ = graph.edges()
-    g.add_edges_from(zip(u.tolist(), v.tolist()))
-    return g
-
-
-def nx_cut(g, parts, k):
-    """Cut edges counted by networkx: half the sum over shards of cut_size(S, rest)."""
-    total = 0
-    for s in range(k):
-        members = set(np.flatnonzero(parts == s).tolist())
-        total += nx.cut_size(g, members)
-    return total // 2
 
 
 # ---------------------------------------------------------------------------
@@ -146,7 +131,7 @@ def test_ldg_splits_two_disjoint_cliques_with_zero_cut():
     graph = build_graph(u, v)
     parts = ldg(graph, 2, 0.0, seed=0, order="bfs")
     np.testing.assert_array_equal(parts, [0] * 8 + [1] * 8)
-    assert nx_cut(g, parts, 2) == 0  # networkx cut_size: zero cut edges
+    assert nx_cut(g, parts, 2, weight=None) == 0  # networkx cut_size: zero cut edges
 
 
 @pytest.mark.parametrize("seed", [1, 2, 3])
@@ -159,10 +144,10 @@ def test_label_propagation_recovers_a_planted_partition(seed):
     graph = build_graph(u, v, node_ids=np.arange(100), node_weights=np.ones(100, dtype=np.int64))
     graph.node_weights = None
     planted = np.repeat(np.arange(4), 25)
-    planted_cut = nx_cut(g, planted, 4)
+    planted_cut = nx_cut(g, planted, 4, weight=None)
     parts = label_propagation(graph, 4, 0.0, seed=seed)
     assert_valid(graph, parts, 4, 0.0)
-    assert nx_cut(g, parts, 4) <= planted_cut
+    assert nx_cut(g, parts, 4, weight=None) <= planted_cut
 
 
 @needs_shared
@@ -170,7 +155,7 @@ def test_label_propagation_recovers_a_planted_partition(seed):
 def test_streaming_beats_random_on_the_3elt_mesh(k):
     # 3elt: Walshaw archive finite-element mesh (copy from SuiteSparse), 4720 nodes.
     if "3elt.txt.gz" not in DATASETS:
-        pytest.skip("3elt.txt.gz missing from the shared datasets")
+        pytest.skip(shared_missing("3elt.txt.gz"))
     graph = shared_graph("3elt.txt.gz")
     n = graph.n
     rnd = cut_weight(graph, random_partition(graph, k, 0.0, seed=0)) / graph.m
@@ -191,7 +176,7 @@ def test_streaming_beats_random_on_the_3elt_mesh(k):
 def test_label_propagation_never_worse_than_its_start(name):
     # 3elt: Walshaw mesh; email-Enron: SNAP (CATALOG.md)
     if name not in DATASETS:
-        pytest.skip(f"{name} missing from the shared datasets")
+        pytest.skip(shared_missing(name))
     graph = shared_graph(name)
     for k, eps in ((2, 0.0), (8, 0.03)):
         start = ldg(graph, k, eps, seed=4)
@@ -493,7 +478,7 @@ def _paper_rule(graph, k, eps, seq, method):
 def test_ldg_and_fennel_follow_their_papers_on_3elt(order):
     # 3elt: Walshaw archive finite-element mesh (4,720 nodes, 13,722 edges); k = 8, ε = 0.03.
     if "3elt.txt.gz" not in DATASETS:
-        pytest.skip("3elt.txt.gz missing from the shared datasets")
+        pytest.skip(shared_missing("3elt.txt.gz"))
     graph = shared_graph("3elt.txt.gz")
     seq = stream_order(graph, order, 0)
     got = {m: f(graph, 8, 0.03, seed=0, order=order) for m, f in (("ldg", ldg), ("fennel", fennel))}

@@ -26,8 +26,8 @@ from partition.catalog import (
 )
 from partition.errors import InputError, ParameterError
 
-from conftest import SHARED, shared_graph_rows  # noqa: E402
-needs_shared = pytest.mark.skipif(not SHARED.is_dir(), reason=f"public graphs folder {SHARED} is absent")
+from conftest import SHARED, SHARED_MISSING, shared_graph_rows  # noqa: E402
+needs_shared = pytest.mark.skipif(not SHARED.is_dir(), reason=SHARED_MISSING)
 
 
 # ----------------------------------------------------------------------------

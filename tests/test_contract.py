@@ -11,6 +11,8 @@ from partition.contract import contract, dense_labels, project
 from partition.errors import ParameterError
 from partition.graph import build_graph
 
+from conftest import nx_graph  # noqa: E402
+
 
 def _random_graph(seed, n=30, m=80, weighted=True, node_weights=True):
     rng = np.random.default_rng(seed)
@@ -95,9 +97,7 @@ def test_cut_is_preserved_by_projection(seed):
     q = rng.integers(0, 2, 8)
     coarse = contract(g, labels, 8)
     fine = project(q, labels)
-    G = nx.Graph()
-    G.add_nodes_from(range(g.n))
-    G.add_weighted_edges_from((int(u), int(v), float(w)) for u, v, w in zip(*g.edges()))
+    G = nx_graph(g)
     side = set(np.flatnonzero(fine == 1).tolist())
     expect = nx.cut_size(G, side, weight="weight")
     cu, cv, cw = coarse.edges()

@@ -19,7 +19,7 @@ from partition.edgelist import read_graph
 from partition.errors import InputError
 from partition.graph import build_graph
 
-from conftest import SHARED, shared_graph_rows
+from conftest import SHARED, SHARED_MISSING, shared_graph_rows
 
 
 def _catalog_counts():
@@ -44,7 +44,7 @@ def _nx_from_file(path):
     return g
 
 
-@pytest.mark.skipif(not SHARED.exists(), reason="../shared/datasets is not present")
+@pytest.mark.skipif(not SHARED.exists(), reason=SHARED_MISSING)
 def test_shared_graph_counts_match_catalog():
     # Source of the expected values: CATALOG.md, counts published by SNAP /
     # SuiteSparse / the Walshaw archive after symmetrising and dropping self-loops.
@@ -58,7 +58,7 @@ def test_shared_graph_counts_match_catalog():
         assert not np.any(g.rows() == g.indices)
 
 
-@pytest.mark.skipif(not SHARED.exists(), reason="../shared/datasets is not present")
+@pytest.mark.skipif(not SHARED.exists(), reason=SHARED_MISSING)
 @pytest.mark.parametrize("name", ["ca-GrQc.txt.gz", "email-Eu-core.txt.gz", "minnesota.txt.gz"])
 def test_edges_equal_networkx(name):
     # Reference: networkx's Graph, which merges u v / v u / repeats into one edge.

@@ -16,6 +16,8 @@ from partition.errors import ParameterError
 from partition.graph import build_graph
 from partition.hierarchy import build_hierarchy
 
+from conftest import shared_missing  # noqa: E402
+
 DATASETS = Path(__file__).resolve().parents[2] / "shared" / "datasets"
 
 
@@ -193,7 +195,7 @@ def test_public_mesh_leaf_order():
     # order, and its raw 2-way line cut is far below a random order's ~0.5
     path = DATASETS / "3elt.txt.gz"
     if not path.exists():
-        pytest.skip(f"public dataset folder not found at {DATASETS}")
+        pytest.skip(shared_missing("3elt.txt.gz"))
     from partition.edgelist import read_graph
 
     g = read_graph(path)

@@ -12,17 +12,7 @@ from partition.graph import build_graph
 from partition.refine.flow import boundary_region, pair_min_cut, refine_flow
 from partition.refine.units import fixed_point_weights
 
-
-def _nx(g):
-    G = nx.Graph()
-    G.add_nodes_from(range(g.n))
-    G.add_weighted_edges_from((int(u), int(v), float(w)) for u, v, w in zip(*g.edges()))
-    return G
-
-
-def _cut(G, parts):
-    return sum(nx.cut_size(G, set(np.flatnonzero(parts == s).tolist()), weight="weight")
-               for s in np.unique(parts)) / 2
+from conftest import nx_cut, nx_graph  # noqa: E402
 
 
 @settings(max_examples=40, deadline=None)
@@ -42,7 +32,7 @@ def test_region_min_cut_equals_networkx_minimum_cut(seed, fixed):
     region = np.setdiff1d(np.arange(n), np.concatenate((fixed_a, fixed_b)))
     sides, value, scale = pair_min_cut(g, parts, 2, 5, region)
     assert scale == 1.0
-    G = _nx(g)
+    G = nx_graph(g)
     H = G.copy()
     for v in fixed_a:
         H.add_edge("S", int(v), weight=float("inf"))
@@ -55,7 +45,7 @@ def test_region_min_cut_equals_networkx_minimum_cut(seed, fixed):
     for to_b in sides:  # both extreme minimum cuts realise the value (networkx cut_size recount)
         new = parts.copy()
         new[region] = np.where(to_b, 5, 2)
-        assert _cut(G, new) == pytest.approx(expect)
+        assert nx_cut(G, new) == pytest.approx(expect)
 
 
 def test_region_follows_bfs_layers_and_budget():
@@ -67,7 +57,7 @@ def test_region_follows_bfs_layers_and_budget():
                     node_weights=np.ones(n, dtype=np.int64))
     parts = (np.arange(n) >= n // 2).astype(np.int64)
     nodes = np.arange(n, dtype=np.int64)
-    G = _nx(g)
+    G = nx_graph(g)
     for layers in (1, 2, 3):
         region = boundary_region(g.indptr, g.indices, g.node_weight_array(), parts, 0, 1, nodes, layers, n, n)
         expect = set()
@@ -112,9 +102,9 @@ def test_refine_flow_never_increases_cut_and_keeps_rule(seed, k, eps, sched):
     rule = balance_rule(None, k, eps, n)
     parts = rng.permutation(np.arange(n) % k)
     new, stats = refine_flow(g, parts, rule, schedule=sched)
-    G = _nx(g)
-    assert _cut(G, new) <= _cut(G, parts)
-    assert stats["cut_after"] == pytest.approx(_cut(G, new))
+    G = nx_graph(g)
+    assert nx_cut(G, new) <= nx_cut(G, parts)
+    assert stats["cut_after"] == pytest.approx(nx_cut(G, new))
     assert rule.check(np.bincount(new, minlength=k)) and stats["balanced"]
     again, _ = refine_flow(g, parts, rule, schedule=sched)
     np.testing.assert_array_equal(new, again)

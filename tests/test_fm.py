@@ -3,7 +3,7 @@
 import networkx as nx
 import numpy as np
 import pytest
-from hypothesis import given, settings
+from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
 from partition.balance import balance_rule
@@ -13,20 +13,7 @@ from partition.refine.fm import fm_pair, fm_round, refine_fm, refine_fm_kway
 from partition.refine.schedule import round_robin
 from partition.refine.units import fixed_point_weights
 
-
-def to_nx(g):
-    G = nx.Graph()
-    G.add_nodes_from(range(g.n))
-    G.add_weighted_edges_from((int(u), int(v), float(w)) for u, v, w in zip(*g.edges()))
-    return G
-
-
-def nx_cut(G, parts):
-    """Total cut weight from networkx.cut_size: half the sum over shards of each shard's boundary."""
-    total = 0.0
-    for s in np.unique(parts):
-        total += nx.cut_size(G, set(np.flatnonzero(parts == s).tolist()), weight="weight")
-    return total / 2
+from conftest import nx_cut, nx_graph  # noqa: E402
 
 
 def random_graph(seed, n, m, weighted=False, node_weights=False, isolated=0):
@@ -70,9 +57,8 @@ def test_units_keep_balance_and_report_exact_gains(g, k, eps, seed):
     k = min(k, g.n)
     rule = balance_rule(g.node_weights, k, eps, g.n)
     parts = balanced_start(g, k, seed)
-    if not rule.check(loads(g, parts, k)):  # weighted starts may miss the cap; the rule is what FM keeps
-        return
-    G = to_nx(g)
+    assume(rule.check(loads(g, parts, k)))  # weighted starts may miss the cap; the rule is what FM keeps
+    G = nx_graph(g)
     w, scale = fixed_point_weights(g)
     assert scale == 1
     for pairs in round_robin(k):
@@ -96,10 +82,9 @@ def test_refine_fm_never_increases_cut_and_keeps_rule(g, k, eps, sched):
     k = min(k, g.n)
     rule = balance_rule(g.node_weights, k, eps, g.n)
     parts = balanced_start(g, k, 0)
-    if not rule.check(loads(g, parts, k)):
-        return
+    assume(rule.check(loads(g, parts, k)))
     new, stats = refine_fm(g, parts, rule, schedule=sched)
-    G = to_nx(g)
+    G = nx_graph(g)
     assert nx_cut(G, new) <= nx_cut(G, parts)
     assert stats["cut_after"] == pytest.approx(nx_cut(G, new))
     assert stats["cut_before"] - stats["cut_after"] == pytest.approx(sum(r["gain"] for r in stats["rounds"]))
@@ -120,7 +105,7 @@ def test_escapes_a_local_optimum_of_single_moves():
     w = np.array([3, 1, 1, 1, 1, 2, 2, 2, 2, 2], dtype=np.float64)
     g = build_graph(src, dst, w)
     parts = np.array([0, 0, 0, 0, 1, 1, 1, 1])
-    G = to_nx(g)
+    G = nx_graph(g)
     base = nx_cut(G, parts)
     assert base == 4
     for v in range(8):  # every single move loses (networkx recount)
@@ -149,7 +134,7 @@ def _optimum_bisection(g):
     X = X[(size == n // 2) | (size == (n + 1) // 2)]
     cuts = ((X @ W) * (1 - X)).sum(1)
     best = X[np.argmin(cuts)]
-    value = nx.cut_size(to_nx(g), set(np.flatnonzero(best).tolist()), weight="weight")
+    value = nx.cut_size(nx_graph(g), set(np.flatnonzero(best).tolist()), weight="weight")
     assert value == cuts.min()
     return value
 
@@ -172,7 +157,7 @@ def test_two_way_fm_finds_the_optimum_bisection_on_small_graphs():
         parts = balanced_start(g, 2, seed)
         new, _ = refine_fm(g, parts, rule, max_passes=20)
         assert rule.check(loads(g, new, 2))
-        hits += nx_cut(to_nx(g), new) == _optimum_bisection(g)
+        hits += nx_cut(nx_graph(g), new) == _optimum_bisection(g)
     assert cases == 111
     assert hits >= 0.8 * cases, f"optimum reached on {hits} of {cases}"
 
@@ -189,7 +174,7 @@ def test_on_par_with_networkx_kernighan_lin():
     ours, theirs, cases = [], [], 50
     for seed in range(cases):
         g = random_graph(100 + seed, 40, 100, weighted=bool(seed % 2))
-        G = to_nx(g)
+        G = nx_graph(g)
         parts = balanced_start(g, 2, seed)
         start = (set(np.flatnonzero(parts == 0).tolist()), set(np.flatnonzero(parts == 1).tolist()))
         kl = kernighan_lin_bisection(G, partition=start, max_iter=20, weight="weight", seed=seed)
@@ -259,7 +244,7 @@ def test_float_weights_use_fixed_point():
     rule = balance_rule(None, 3, 0.05, g.n)
     parts = balanced_start(g, 3, 0)
     new, stats = refine_fm(g, parts, rule)
-    G = to_nx(g)
+    G = nx_graph(g)
     gain = sum(r["gain"] for r in stats["rounds"])
     assert gain == pytest.approx(nx_cut(G, parts) - nx_cut(G, new), abs=1e-4)
 
@@ -270,10 +255,9 @@ def test_kway_keeps_rule_and_gain_is_exact(g, k, eps):
     k = min(k, g.n)
     rule = balance_rule(g.node_weights, k, eps, g.n)
     parts = balanced_start(g, k, 1)
-    if not rule.check(loads(g, parts, k)):
-        return
+    assume(rule.check(loads(g, parts, k)))
     new, stats = refine_fm_kway(g, parts, rule)
-    G = to_nx(g)
+    G = nx_graph(g)
     assert stats["gain"] == pytest.approx(nx_cut(G, parts) - nx_cut(G, new))
     assert stats["gain"] >= 0
     assert rule.check(loads(g, new, k))

@@ -15,6 +15,8 @@ from partition.graph import build_graph
 from partition.hierarchy import CoarseEdges, build_hierarchy, contract
 from partition.rules import AFFINITY_SCALE
 
+from conftest import shared_missing  # noqa: E402
+
 DATASETS = Path(__file__).resolve().parents[2] / "shared" / "datasets"
 
 
@@ -242,7 +244,7 @@ def test_public_graph_components():
     # ca-GrQc (SNAP, Leskovec & Krevl) has many components; networkx is the reference
     path = DATASETS / "ca-GrQc.txt.gz"
     if not path.exists():
-        pytest.skip(f"public dataset folder not found at {DATASETS}")
+        pytest.skip(shared_missing("ca-GrQc.txt.gz"))
     from partition.edgelist import read_graph
 
     g = read_graph(path)

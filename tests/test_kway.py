@@ -1,9 +1,8 @@
 """Tests of partition/refine/kway.py: bounds kept at every state, exact gains (networkx recount)."""
 
-import networkx as nx
 import numpy as np
 import pytest
-from hypothesis import given, settings
+from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
 from partition.balance import balance_rule
@@ -11,13 +10,7 @@ from partition.graph import build_graph
 from partition.refine.kway import fm_kway
 from partition.refine.units import fixed_point_weights
 
-
-def _nx_cut(g, parts):
-    G = nx.Graph()
-    G.add_nodes_from(range(g.n))
-    G.add_weighted_edges_from((int(u), int(v), float(w)) for u, v, w in zip(*g.edges()))
-    return sum(nx.cut_size(G, set(np.flatnonzero(parts == s).tolist()), weight="weight")
-               for s in np.unique(parts)) / 2
+from conftest import nx_cut, nx_graph  # noqa: E402
 
 
 @settings(max_examples=30, deadline=None)
@@ -30,12 +23,12 @@ def test_kway_keeps_bounds_and_gain_is_exact(seed, k, eps, rescan):
                     node_ids=np.arange(n), node_weights=rng.integers(1, 3, n))
     rule = balance_rule(g.node_weights, k, eps, g.n)
     parts = np.arange(g.n) % k
-    if not rule.check(np.bincount(parts, weights=g.node_weights, minlength=k)):
-        return
+    assume(rule.check(np.bincount(parts, weights=g.node_weights, minlength=k)))
     w, _ = fixed_point_weights(g)
     new, gain = fm_kway(g.indptr, g.indices, w, g.node_weights, parts, k, rule.cap, rule.floor, 6, 1000, rescan)
     assert gain >= 0
-    assert gain == pytest.approx(_nx_cut(g, parts) - _nx_cut(g, new))  # networkx recount
+    G = nx_graph(g)
+    assert gain == pytest.approx(nx_cut(G, parts) - nx_cut(G, new))  # networkx recount
     assert rule.check(np.bincount(new, weights=g.node_weights, minlength=k))
 
 

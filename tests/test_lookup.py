@@ -17,6 +17,8 @@ from partition.placement import lookup
 from partition.node_shards import read_node_shards
 from partition.placement.lookup import Placement, fnv1a64, string_key_hash
 
+from conftest import shared_missing  # noqa: E402
+
 SHARED = Path(__file__).resolve().parents[2] / "shared" / "datasets"
 
 INT64 = st.integers(min_value=-(2**63), max_value=2**63 - 1)
@@ -179,7 +181,7 @@ def test_integer_keys_take_at_most_24_bytes(kind):
     assert p.shards_of(keys[::97]).tolist() == p.to_arrays()[1][np.searchsorted(p.to_arrays()[0], keys[::97])].tolist()
 
 
-@pytest.mark.skipif(not (SHARED / "ca-GrQc.txt.gz").exists(), reason=f"public graphs not found in {SHARED}")
+@pytest.mark.skipif(not (SHARED / "ca-GrQc.txt.gz").exists(), reason=shared_missing("ca-GrQc.txt.gz"))
 def test_lookup_over_the_node_ids_of_a_public_graph():
     # ca-GrQc (SNAP, Leskovec & Krevl): 5242 nodes with non-contiguous ids (CATALOG.md);
     # reference: a Python dict over the same ids

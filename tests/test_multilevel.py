@@ -2,7 +2,6 @@
 
 from pathlib import Path
 
-import networkx as nx
 import numpy as np
 import pytest
 import scipy.sparse as sp
@@ -16,6 +15,8 @@ from partition.errors import ParameterError
 from partition.graph import build_graph
 from partition.refine.fm import refine_fm
 from partition.refine.multilevel import atom_levels, refine_multilevel
+
+from conftest import nx_cut, nx_graph, shared_missing  # noqa: E402
 
 DATASETS = Path(__file__).resolve().parents[2] / "shared" / "datasets"
 
@@ -54,14 +55,6 @@ def balanced_start(n, k, seed):
     return np.random.default_rng(seed).permutation(np.arange(n) % k)
 
 
-def nx_cut(g, parts):
-    G = nx.Graph()
-    G.add_nodes_from(range(g.n))
-    G.add_weighted_edges_from((int(u), int(v), float(w)) for u, v, w in zip(*g.edges()))
-    return sum(nx.cut_size(G, set(np.flatnonzero(parts == s).tolist()), weight="weight")
-               for s in np.unique(parts)) / 2
-
-
 @settings(max_examples=15, deadline=None)
 @given(seed=st.integers(0, 5000), k=st.integers(2, 6), eps=st.sampled_from([0.0, 0.03]),
        overfill=st.sampled_from([0.0, 0.03, 0.1]))
@@ -71,8 +64,9 @@ def test_balance_holds_and_cut_never_grows(seed, k, eps, overfill):
     parts = balanced_start(g.n, k, seed)
     new, stats = refine_multilevel(g, nested_levels(g), parts, rule, overfill=overfill)
     assert rule.check(np.bincount(new, minlength=k)) and stats["balanced"]
-    assert nx_cut(g, new) <= nx_cut(g, parts)  # networkx recount
-    assert stats["cut_after"] == pytest.approx(nx_cut(g, new))
+    G = nx_graph(g)
+    assert nx_cut(G, new) <= nx_cut(G, parts)  # networkx recount
+    assert stats["cut_after"] == pytest.approx(nx_cut(G, new))
     # A level's partition projects to the next level without changing the cut
     # (contraction preserves cuts), so consecutive level figures chain up.
     levels = stats["levels"]
@@ -87,6 +81,7 @@ def test_atoms_are_whole_in_one_shard_and_weights_add_up():
     levels = atom_levels(g, labels, parts)
     assert levels
     fine = np.arange(g.n)
+    G = nx_graph(g)
     for r, coarse, up in levels:
         fine = up[fine]
         # one start shard and one level-r cluster per atom
@@ -94,7 +89,7 @@ def test_atoms_are_whole_in_one_shard_and_weights_add_up():
         assert np.unique(np.stack([fine, labels[r]], 1), axis=0).shape[0] == coarse.n
         assert coarse.node_weights.sum() == g.n
         # coarse edges carry exactly the fine edges between atoms (networkx recount)
-        assert coarse.total_edge_weight() == pytest.approx(nx_cut(g, fine))
+        assert coarse.total_edge_weight() == pytest.approx(nx_cut(G, fine))
 
 
 def test_levels_must_be_nested():
@@ -128,7 +123,7 @@ def test_public_mesh_multilevel_beats_flat_refinement():
     # (cut edges / edges).
     path = DATASETS / "3elt.txt.gz"
     if not path.exists():
-        pytest.skip(f"public graph not found: {path}")
+        pytest.skip(shared_missing(path.name))
     data = np.loadtxt(path, dtype=np.int64, comments="#")
     g = build_graph(data[:, 0], data[:, 1])
     assert (g.n, g.m) == (4720, 13722)  # counts from ../shared/datasets/CATALOG.md
@@ -140,5 +135,6 @@ def test_public_mesh_multilevel_beats_flat_refinement():
     flat, _ = refine_fm(g, parts, rule)
     assert stats["balanced"] and not stats["kept_start"]
     assert sum(isinstance(lv["level"], int) and lv["level"] > 0 for lv in stats["levels"]) >= 3  # coarse levels ran
-    start, ml, fm = nx_cut(g, parts) / g.m, stats["cut_after"] / g.m, nx_cut(g, flat) / g.m
+    G = nx_graph(g)
+    start, ml, fm = nx_cut(G, parts) / g.m, stats["cut_after"] / g.m, nx_cut(G, flat) / g.m
     assert ml < fm < start, f"start {start:.4f}, multilevel {ml:.4f}, flat FM {fm:.4f}"

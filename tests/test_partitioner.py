@@ -25,6 +25,8 @@ from partition.partitioner import REFINEMENTS, partition_graph
 from partition.rules import LINKAGES
 from partition.score import score
 
+from conftest import nx_cut  # noqa: E402
+
 # --- helpers ---------------------------------------------------------------
 
 
@@ -42,15 +44,6 @@ def nx_reference(n, src, dst, weights=None):
     G.add_nodes_from(range(n))
     G.add_weighted_edges_from((u, v, w) for (u, v), w in merged.items())
     return G
-
-
-def nx_cut(G, shard_of, k):
-    """Σ over shard pairs a < b of networkx ``cut_size(G, S_a, S_b, weight)``."""
-    blocks = [set() for _ in range(k)]
-    for node, a in shard_of.items():
-        blocks[a].add(node)
-    return sum(nx.cut_size(G, blocks[a], blocks[b], weight="weight")
-               for a in range(k) for b in range(a + 1, k))
 
 
 def loads_of(graph, parts, k):

@@ -10,12 +10,13 @@ from __future__ import annotations
 
 import io
 
-import networkx as nx
 import numpy as np
 import pytest
 from rich.console import Console
 
 from partition.progress import FIRST_LINE, LINE_EVERY, Progress, progress_for
+
+from conftest import nx_cut, nx_graph  # noqa: E402
 
 
 class FakeClock:
@@ -99,9 +100,7 @@ def test_label_propagation_reports_every_round_cut_and_leaves_the_graph_alone():
     # the rounds read the graph's arrays and never write into them (a weighted graph's weights included)
     assert all(np.array_equal(a, b) for a, b in zip(before, (graph.indptr, graph.indices, graph.edge_weights)))
     assert rows and [r["round"] for r in rows] == list(range(1, len(rows) + 1))
-    g = nx.Graph()
-    g.add_weighted_edges_from(zip(graph.rows().tolist(), graph.indices.tolist(), graph.edge_weights.tolist()))
-    final = sum(nx.cut_size(g, set(np.flatnonzero(parts == s).tolist()), weight="weight") for s in range(4)) / 2
+    final = nx_cut(nx_graph(graph), parts, 4)
     # the result is the best assignment seen: its cut is at most every reported round's cut
     assert final <= min(r["cut"] for r in rows) + 1e-9
 

@@ -1,6 +1,5 @@
 """Tests of partition/refine/rebalance.py: the rule is restored with few, cheap moves (networkx recount)."""
 
-import networkx as nx
 import numpy as np
 import pytest
 from hypothesis import given, settings
@@ -11,19 +10,13 @@ from partition.graph import build_graph
 from partition.refine.rebalance import rebalance, rebalance_kernel
 from partition.refine.units import fixed_point_weights
 
+from conftest import nx_cut, nx_graph  # noqa: E402
+
 
 def _graph(seed, n=120, m=400):
     rng = np.random.default_rng(seed)
     return build_graph(rng.integers(0, n, m), rng.integers(0, n, m), node_ids=np.arange(n),
                        node_weights=np.ones(n, dtype=np.int64))
-
-
-def _nx_cut(g, parts):
-    G = nx.Graph()
-    G.add_nodes_from(range(g.n))
-    G.add_weighted_edges_from((int(u), int(v), float(w)) for u, v, w in zip(*g.edges()))
-    return sum(nx.cut_size(G, set(np.flatnonzero(parts == s).tolist()), weight="weight")
-               for s in np.unique(parts)) / 2
 
 
 @settings(max_examples=40, deadline=None)
@@ -50,7 +43,7 @@ def test_unit_weights_are_rebalanced_with_few_moves(seed, k, eps):
     else:
         assert stats["moved"] == over
         assert np.all(load0[parts[new != parts]] > rule.cap)
-    assert stats["cut_after"] == pytest.approx(_nx_cut(g, new))
+    assert stats["cut_after"] == pytest.approx(nx_cut(nx_graph(g), new))
 
 
 def test_balanced_input_is_left_alone():
@@ -91,7 +84,8 @@ def test_kernel_only_touches_active_shards():
     assert set(new.tolist()) <= {0, 1}
     out = parts.copy()
     out[nodes] = new
-    assert loss == pytest.approx(_nx_cut(g, out) - _nx_cut(g, parts))
+    G = nx_graph(g)
+    assert loss == pytest.approx(nx_cut(G, out) - nx_cut(G, parts))
     l2 = np.bincount(out, minlength=k)
     assert l2[0] + l2[1] == loads[0] + loads[1]
     assert max(l2[0], l2[1]) <= max(rule.cap, max(loads[0], loads[1]))

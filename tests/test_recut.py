@@ -20,6 +20,8 @@ from partition.placement.bounded_hash import mod_assign
 from partition.placement.recut import band_floor, read_order, recut
 from partition.tables import order_table, write_table
 
+from conftest import shared_missing  # noqa: E402
+
 DATASETS = Path(__file__).resolve().parents[2] / "shared" / "datasets"
 
 
@@ -101,7 +103,7 @@ def test_recut_on_a_mesh_moves_far_fewer_nodes_than_rehashing(eps):
 def test_recut_public_mesh():
     path = DATASETS / "3elt.txt.gz"
     if not path.exists():
-        pytest.skip(f"shared datasets folder not found at {DATASETS}")
+        pytest.skip(shared_missing("3elt.txt.gz"))
     # 3elt: Walshaw archive finite-element mesh (CATALOG.md: 4720 nodes, 13722 edges)
     g = read_graph(path)
     assert (g.n, g.m) == (4720, 13722)

@@ -24,6 +24,8 @@ import pytest
 from partition.cli import main
 from partition.errors import InputError, ShardlineError
 
+from conftest import nx_graph, shared_missing  # noqa: E402
+
 pytest.importorskip("matplotlib", reason="the report needs matplotlib: pip install 'shardline[report]'")
 
 REPO = Path(__file__).resolve().parents[1]
@@ -81,9 +83,7 @@ def small_run(tmp_path_factory):
 
 def recount(run):
     """Shard loads and the shard × shard cut with networkx, from the graph's own edges."""
-    g = nx.Graph()
-    g.add_nodes_from(range(run.graph.n))
-    g.add_edges_from((u, v) for u, v in zip(run.graph.rows().tolist(), run.graph.indices.tolist()) if u < v)
+    g = nx_graph(run.graph)
     k = run.report["k"]
     groups = [set(np.flatnonzero(run.parts == s).tolist()) for s in range(k)]
     matrix = [[0 if a == b else nx.cut_size(g, groups[a], groups[b]) for b in range(k)] for a in range(k)]
@@ -282,7 +282,7 @@ def test_every_published_figure_names_its_source_and_says_if_recalled():
 
 
 @pytest.mark.skipif(not (SHARED / "3elt.txt.gz").is_file(),
-                    reason="../shared/datasets/3elt.txt.gz (Walshaw archive mesh) is not beside the repository")
+                    reason=shared_missing("3elt.txt.gz"))
 def test_a_catalog_graph_gets_its_published_figures_in_score_and_report(tmp_path, capsys):
     graph = SHARED / "3elt.txt.gz"
     out = tmp_path / "k4.csv"

@@ -33,6 +33,8 @@ from partition.edgelist import read_graph
 from partition.generators import planted_partition
 from partition.score import score
 
+from conftest import SHARED_MISSING, nx_cut  # noqa: E402
+
 REPO = Path(__file__).resolve().parents[1]
 DEMO = REPO / "datasets" / "demo" / "larkspur-bay-rides.csv.gz"
 SHARED = Path(__file__).resolve().parents[2] / "shared" / "datasets"
@@ -174,8 +176,7 @@ def test_good_run_writes_assignment_and_report(capsys, tmp_path, graph_file):
     # and networkx agrees on the cut
     G = nx.read_edgelist(graph_file, nodetype=str)
     G.add_nodes_from(placed)
-    blocks = [{v for v, s in placed.items() if s == a} for a in range(3)]
-    cut = sum(nx.cut_size(G, blocks[a], blocks[b]) for a in range(3) for b in range(a + 1, 3))
+    cut = nx_cut(G, placed, 3, weight=None)
     assert scored["cut_edges"] == cut
 
 
@@ -350,7 +351,7 @@ _COUNTS = _catalog_counts()
 _LARGE = 100_000  # edges; larger graphs are marked slow (CI still runs them)
 
 
-@pytest.mark.skipif(not DATASETS, reason=f"public graphs not found in {SHARED}")
+@pytest.mark.skipif(not DATASETS, reason=SHARED_MISSING)
 @pytest.mark.parametrize("name", [pytest.param(n, marks=pytest.mark.slow) if _COUNTS.get(n, (0, 0))[1] > _LARGE else n
                                   for n in DATASETS])
 def test_shared_graph_k8_meets_the_balance_bound(capsys, tmp_path, name):

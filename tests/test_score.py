@@ -23,7 +23,7 @@ from partition.errors import ParameterError
 from partition.graph import build_graph
 from partition.score import CUT_PAIRS_LIMIT, DENSE_MATRIX_MAX_K, score
 
-from conftest import SHARED, shared_graph_rows  # noqa: E402
+from conftest import SHARED, nx_cut, shared_graph_rows, shared_missing  # noqa: E402
 
 
 # --- helpers: the graph both ways, and networkx recounts -------------------
@@ -45,12 +45,6 @@ def _both(n, m, seed, weighted=False):
 
 def _blocks(parts, k):
     return [set(np.flatnonzero(parts == a).tolist()) for a in range(k)]
-
-
-def _nx_cut(G, parts, k, weight="weight"):
-    """Sum over shard pairs a < b of networkx's ``cut_size(G, S_a, S_b)``."""
-    S = _blocks(parts, k)
-    return sum(nx.cut_size(G, S[a], S[b], weight=weight) for a in range(k) for b in range(a + 1, k))
 
 
 def _nx_volume(G, parts):
@@ -80,10 +74,10 @@ def test_figures_match_networkx(weighted, k):
     G, g = _both(400, 1500, seed=k + 7 * weighted, weighted=weighted)
     parts = np.random.default_rng(k).integers(0, k, g.n)
     s = score(g, parts, k)
-    assert s.cut_weight == pytest.approx(_nx_cut(G, parts, k))  # networkx cut_size
-    assert s.cut_edges == _nx_cut(G, parts, k, weight=None)  # networkx cut_size, unweighted
+    assert s.cut_weight == pytest.approx(nx_cut(G, parts, k))  # networkx cut_size
+    assert s.cut_edges == nx_cut(G, parts, k, weight=None)  # networkx cut_size, unweighted
     assert s.total_edge_weight == pytest.approx(G.size(weight="weight"))  # networkx size
-    assert s.cut_fraction == pytest.approx(_nx_cut(G, parts, k) / G.size(weight="weight"))
+    assert s.cut_fraction == pytest.approx(nx_cut(G, parts, k) / G.size(weight="weight"))
     assert s.communication_volume == _nx_volume(G, parts)  # direct networkx recount
     assert s.boundary_nodes == len(_nx_boundary(G, parts, k))  # networkx node_boundary
     assert s.fanout == pytest.approx(_nx_fanout(G, parts))  # direct networkx recount
@@ -148,8 +142,8 @@ def test_random_small_graphs_match_networkx(n, edges, k, seed, weighted):
     g = build_graph(src, dst, weights=w, node_ids=np.arange(n), node_weights=np.ones(n, np.int64))
     parts = np.random.default_rng(seed).integers(0, k, n)
     s = score(g, parts, k)
-    assert s.cut_weight == pytest.approx(_nx_cut(G, parts, k))
-    assert s.cut_edges == _nx_cut(G, parts, k, weight=None)
+    assert s.cut_weight == pytest.approx(nx_cut(G, parts, k))
+    assert s.cut_edges == nx_cut(G, parts, k, weight=None)
     assert s.communication_volume == _nx_volume(G, parts)
     assert s.boundary_nodes == len(_nx_boundary(G, parts, k))
     assert s.fanout == pytest.approx(_nx_fanout(G, parts))
@@ -322,7 +316,7 @@ _LARGE = 100_000  # edges; larger graphs are marked slow and scored at k = 2
 _COUNTS = _catalog() if (SHARED / "CATALOG.md").exists() else {}
 
 
-@pytest.mark.skipif(not _COUNTS, reason="../shared/datasets (with CATALOG.md) is not present")
+@pytest.mark.skipif(not _COUNTS, reason=shared_missing("CATALOG.md"))
 @pytest.mark.parametrize(
     "name",
     [pytest.param(f, marks=pytest.mark.slow) if m > _LARGE else f for f, (_, m) in sorted(_COUNTS.items())]
@@ -343,8 +337,7 @@ def test_public_graph_cut_matches_networkx(name):
     k = 2 if m_expected > _LARGE else 4
     parts = np.random.default_rng(2024).integers(0, k, g.n)
     part_of = dict(zip(g.ids.tolist(), parts.tolist()))
-    S = [{u for u, p in part_of.items() if p == a} for a in range(k)]
-    expected = sum(nx.cut_size(G, S[a], S[b]) for a in range(k) for b in range(a + 1, k))
+    expected = nx_cut(G, part_of, k, weight=None)
     s = score(g, parts, k)
     assert s.cut_edges == expected  # networkx cut_size over shard pairs
     assert s.cut_weight == float(expected)

@@ -18,6 +18,8 @@ from partition.refine import schedule
 from partition.refine.gains import cut_total, cut_weights, local_index, pair_gains, shard_cut_matrix
 from partition.refine.swaps import refine_swaps, swap_pair, swap_round
 
+from conftest import nx_cut, nx_graph, shared_missing  # noqa: E402
+
 DATASETS = Path(__file__).resolve().parents[2] / "shared" / "datasets"
 _UNIT = np.empty(0, dtype=np.int64)
 
@@ -37,20 +39,6 @@ def _random_graph(n, p, seed, weighted=False):
     )
 
 
-def _to_nx(g):
-    G = nx.Graph()
-    G.add_nodes_from(range(g.n))
-    u, v, w = g.edges()
-    G.add_weighted_edges_from(zip(u.tolist(), v.tolist(), w.tolist()))
-    return G
-
-
-def _nx_cut(G, parts, k):
-    # k-way cut weight recounted with networkx: each cut edge leaves two shards' boundaries
-    sets = [set(np.flatnonzero(parts == s).tolist()) for s in range(k)]
-    return sum(nx.cut_size(G, S, weight="weight") for S in sets if S) / 2
-
-
 def _loads(g, parts, k):
     return np.bincount(parts, weights=g.node_weight_array(), minlength=k).astype(np.int64)
 
@@ -61,36 +49,36 @@ def test_path_repaired_to_one_edge():
     g = build_graph(np.arange(9), np.arange(1, 10))
     parts = np.ones(10, dtype=np.int32)
     parts[[0, 1, 2, 3, 5]] = 0
-    G = _to_nx(g)
-    assert _nx_cut(G, parts, 2) == 3
+    G = nx_graph(g)
+    assert nx_cut(G, parts, 2) == 3
     rule = balance_rule(None, 2, 0.0, n_nodes=10)
     out, stats = refine_swaps(g, parts, 2, rule)
     assert out.tolist() == [0] * 5 + [1] * 5
     assert stats["cut_before"] == 3 and stats["cut_after"] == 1
-    assert _nx_cut(G, out, 2) == 1  # networkx recount
+    assert nx_cut(G, out, 2) == 1  # networkx recount
 
 
 def test_pair_gains_match_networkx_recount():
     g = _random_graph(30, 0.2, seed=1, weighted=True)
-    G = _to_nx(g)
+    G = nx_graph(g)
     parts = line_cut(np.random.default_rng(2).permutation(30), None, 3)
     weights, scale = cut_weights(g.edge_weights)
     assert scale == 1  # integral weights are used as they are
     nodes = np.flatnonzero((parts == 0) | (parts == 2)).astype(np.int64)
     gains = pair_gains(g.indptr, g.indices, weights, parts, nodes, 0, 2)
-    before = _nx_cut(G, parts, 3)
+    before = nx_cut(G, parts, 3)
     for u, gain in zip(nodes, gains):
         moved = parts.copy()
         moved[u] = 2 if parts[u] == 0 else 0
-        assert before - _nx_cut(G, moved, 3) == gain  # gain = drop of the networkx cut
+        assert before - nx_cut(G, moved, 3) == gain  # gain = drop of the networkx cut
 
 
 def test_cut_helpers_match_networkx():
     g = _random_graph(40, 0.15, seed=3, weighted=True)
-    G = _to_nx(g)
+    G = nx_graph(g)
     parts = np.random.default_rng(4).integers(0, 4, 40)
     weights, _ = cut_weights(g.edge_weights)
-    assert cut_total(g.indptr, g.indices, weights, parts) == _nx_cut(G, parts, 4)
+    assert cut_total(g.indptr, g.indices, weights, parts) == nx_cut(G, parts, 4)
     mat = shard_cut_matrix(g.indptr, g.indices, weights, parts, 4)
     for a in range(4):
         for b in range(4):
@@ -118,17 +106,17 @@ def test_fractional_weights_go_to_fixed_point():
 def test_rounds_keep_loads_and_never_raise_the_cut(n, p, k, seed, weighted):
     k = min(k, n)
     g = _random_graph(n, p, seed, weighted)
-    G = _to_nx(g)
+    G = nx_graph(g)
     rng = np.random.default_rng(seed)
     parts = line_cut(rng.permutation(n), None, k)
     rule = balance_rule(None, k, 0.0, n_nodes=n)
     loads = _loads(g, parts, k)
-    cut = _nx_cut(G, parts, k)
+    cut = nx_cut(G, parts, k)
     rounds = [schedule.line_pairs(k, 0), schedule.line_pairs(k, 1)] + schedule.round_robin(k)
     for pairs in rounds:
         new, gain, moved = swap_round(g, parts, pairs, rule)
         assert np.array_equal(_loads(g, new, k), loads)  # unit weights: loads exactly unchanged
-        new_cut = _nx_cut(G, new, k)
+        new_cut = nx_cut(G, new, k)
         assert gain >= 0 and new_cut == cut - gain  # reported gain = networkx recount
         assert moved == int(np.count_nonzero(new != parts))
         parts, cut = new, new_cut
@@ -166,11 +154,11 @@ def test_node_weights_stay_within_cap(n, k, seed):
     g = build_graph(*base.edges()[:2], node_ids=np.arange(n), node_weights=nw)
     rule = balance_rule(nw, k, 0.05)
     parts = line_cut(rng.permutation(n), nw, k)
-    G = _to_nx(g)
-    before = _nx_cut(G, parts, k)
+    G = nx_graph(g)
+    before = nx_cut(G, parts, k)
     out, stats = refine_swaps(g, parts, k, rule, schedule="round_robin")
     assert _loads(g, out, k).max() <= rule.cap
-    assert stats["cut_after"] == _nx_cut(G, out, k) <= before
+    assert stats["cut_after"] == nx_cut(G, out, k) <= before
 
 
 def _reference_unit(G, parts, nw, a, b, cap, floor, iterations, patience):
@@ -192,14 +180,14 @@ def _reference_unit(G, parts, nw, a, b, cap, floor, iterations, patience):
                 sides[int(state[u])].append((-(ext - own), u))
         ca = [u for _, u in sorted(sides[a])]
         cb = [u for _, u in sorted(sides[b])]
-        start_cut = _nx_cut(G, state, k)
+        start_cut = nx_cut(G, state, k)
         load_a, load_b = nw[state == a].sum(), nw[state == b].sum()
         best, best_len = 0, 0
         trial = state.copy()
         for t in range(min(len(ca), len(cb))):
             trial[ca[t]], trial[cb[t]] = b, a
             la, lb = nw[trial == a].sum(), nw[trial == b].sum()
-            red = start_cut - _nx_cut(G, trial, k)
+            red = start_cut - nx_cut(G, trial, k)
             ok = min(floor, load_a) <= la <= max(cap, load_a) and min(floor, load_b) <= lb <= max(cap, load_b)
             if red > best and ok:
                 best, best_len = red, t + 1
@@ -228,7 +216,7 @@ def test_unit_follows_documented_rules(n, k, patience, weighted_nodes, seed):
     u, v, w = base.edges()
     g = build_graph(u, v, weights=None if base.edge_weights is None else w,
                     node_ids=np.arange(n), node_weights=nw)
-    G = _to_nx(g)
+    G = nx_graph(g)
     parts = line_cut(rng.permutation(n), nw, k)
     rule = balance_rule(nw, k, 0.1)
     weights, _ = cut_weights(g.edge_weights)
@@ -241,7 +229,7 @@ def test_unit_follows_documented_rules(n, k, patience, weighted_nodes, seed):
     got[nodes] = targets
     expect = _reference_unit(G, parts, nw, a, b, rule.cap, rule.floor, 3, patience)
     assert np.array_equal(got, expect)
-    assert gain == _nx_cut(G, parts, k) - _nx_cut(G, got, k)
+    assert gain == nx_cut(G, parts, k) - nx_cut(G, got, k)
 
 
 def test_bad_pairs_rejected():
@@ -261,7 +249,7 @@ def test_bad_pairs_rejected():
 def _load_shared(name):
     path = DATASETS / name
     if not path.exists():
-        pytest.skip(f"shared dataset {path} is not available")
+        pytest.skip(shared_missing(path.name))
     data = np.loadtxt(path, comments="#", dtype=np.int64, ndmin=2)
     return build_graph(data[:, 0], data[:, 1], source=str(path))
 
@@ -276,8 +264,8 @@ def test_3elt_swaps_improve_a_random_cut(schedule_name):
     rule = balance_rule(None, k, 0.0, n_nodes=g.n)
     out, stats = refine_swaps(g, parts, k, rule, schedule=schedule_name, max_rounds=10)
     assert np.array_equal(np.bincount(out, minlength=k), np.bincount(parts, minlength=k))
-    G = _to_nx(g)
-    assert stats["cut_before"] == _nx_cut(G, parts, k)
-    assert stats["cut_after"] == _nx_cut(G, out, k)
+    G = nx_graph(g)
+    assert stats["cut_before"] == nx_cut(G, parts, k)
+    assert stats["cut_after"] == nx_cut(G, out, k)
     # a random cut keeps about (1 − 1/k) of the edges cut; swaps must remove a real share of them
     assert stats["cut_after"] < 0.9 * stats["cut_before"]

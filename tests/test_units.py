@@ -16,6 +16,8 @@ from partition.refine.units import (
     shard_index,
 )
 
+from conftest import nx_cut, nx_graph  # noqa: E402
+
 
 def test_heap_pops_larger_key_then_smaller_node():
     # Reference: Python's sorted() on (-key, node) gives the documented order.
@@ -52,23 +54,15 @@ def test_fixed_point_weights_follow_rule_one():
         fixed_point_weights(g)
 
 
-def _nx(g):
-    G = nx.Graph()
-    G.add_nodes_from(range(g.n))
-    G.add_weighted_edges_from((int(u), int(v), float(w)) for u, v, w in zip(*g.edges()))
-    return G
-
-
 def test_cut_counts_match_networkx():
     # Reference: networkx.cut_size between every two shards, and of each shard.
     rng = np.random.default_rng(2)
     g = build_graph(rng.integers(0, 60, 300), rng.integers(0, 60, 300), rng.integers(1, 5, 300).astype(float))
     k = 5
     parts = rng.integers(0, k, g.n)
-    G = _nx(g)
+    G = nx_graph(g)
     sets = [set(np.flatnonzero(parts == s).tolist()) for s in range(k)]
-    total = sum(nx.cut_size(G, s, weight="weight") for s in sets) / 2
-    assert edge_cut(g, parts) == pytest.approx(total)
+    assert edge_cut(g, parts) == pytest.approx(nx_cut(G, parts, k))
     cm = shard_cut_matrix(g, parts, k)
     for a in range(k):
         assert cm[a, a] == 0

@@ -19,6 +19,8 @@ from partition.graph import build_graph
 from partition.refine.gains import cut_weights
 from partition.refine.window_dp import chain_dp, line_edges, refine_window, window_dp_round
 
+from conftest import nx_cut, nx_graph, shared_missing  # noqa: E402
+
 DATASETS = Path(__file__).resolve().parents[2] / "shared" / "datasets"
 
 
@@ -36,20 +38,6 @@ def _unit_nodes(g):
     # drop node weights that are all ones so the exact (floor) rule applies
     g.node_weights = None if np.all(g.node_weights == 1) else g.node_weights
     return g
-
-
-def _to_nx(g):
-    G = nx.Graph()
-    G.add_nodes_from(range(g.n))
-    u, v, w = g.edges()
-    G.add_weighted_edges_from(zip(u.tolist(), v.tolist(), w.tolist()))
-    return G
-
-
-def _nx_cut(G, parts, k):
-    # k-way cut recounted with networkx: half the sum of every shard's boundary weight
-    sets = [set(np.flatnonzero(parts == s).tolist()) for s in range(k)]
-    return sum(nx.cut_size(G, S, weight="weight") for S in sets if S) / 2
 
 
 def _windows(b, n, w):
@@ -78,7 +66,7 @@ def _brute_force(g, G, order, b, k, rule, w, free):
             continue
         ok, parts = _balanced(g, order, cand, k, rule)
         if ok:
-            c = _nx_cut(G, parts, k)
+            c = nx_cut(G, parts, k)
             best = c if best is None else min(best, c)
     return best
 
@@ -108,16 +96,16 @@ def _setup(n, k, seed, eps, weighted_nodes):
 def test_matches_brute_force(n, k, w, eps, weighted_nodes, seed):
     k = min(k, n)
     g, order, parts, rule, (p, q, ew, prefix) = _setup(n, k, seed, eps, weighted_nodes)
-    G = _to_nx(g)
+    G = nx_graph(g)
     b = boundaries_from_parts(order, parts, k)
-    before = _nx_cut(G, parts, k)
+    before = nx_cut(G, parts, k)
     masks = [np.ones(k - 1, bool)] + [np.arange(k - 1) == j for j in range(k - 1)]
     for free in masks:
         new, gain = window_dp_round(p, q, ew, prefix, b, free, w, rule.cap, rule.floor)
         ok, out = _balanced(g, order, new, k, rule)
         assert ok
         assert np.all(new[~free] == b[~free])
-        after = _nx_cut(G, out, k)
+        after = nx_cut(G, out, k)
         assert after == before - gain  # reported gain = networkx recount
         assert after == _brute_force(g, G, order, b.tolist(), k, rule, w, free)  # exact optimum
 
@@ -134,12 +122,12 @@ def test_matches_brute_force(n, k, w, eps, weighted_nodes, seed):
 def test_refine_keeps_balance_and_never_raises_the_cut(n, k, chain_length, eps, weighted_nodes, seed):
     k = min(k, n)
     g, order, parts, rule, _ = _setup(n, k, seed, eps, weighted_nodes)
-    G = _to_nx(g)
-    before = _nx_cut(G, parts, k)
+    G = nx_graph(g)
+    before = nx_cut(G, parts, k)
     out, stats = refine_window(g, order, parts, k, rule, w=3, chain_length=chain_length)
     assert rule.check(np.bincount(out, weights=g.node_weight_array(), minlength=k))
     assert stats["cut_before"] == before
-    assert stats["cut_after"] == _nx_cut(G, out, k) <= before
+    assert stats["cut_after"] == nx_cut(G, out, k) <= before
     assert np.array_equal(boundaries_from_parts(order, out, k), stats["boundaries"])
 
 
@@ -180,9 +168,9 @@ def test_grid_reaches_straight_cut():
     rule = balance_rule(None, 2, 0.12, n_nodes=72)
     parts = line_cut(order, None, 2)
     H = nx.relabel_nodes(G, index)
-    assert _nx_cut(H, parts, 2) == 9
+    assert nx_cut(H, parts, 2) == 9
     out, stats = refine_window(g, order, parts, 2, rule, w=8)
-    assert _nx_cut(H, out, 2) == stats["cut_after"] == 8 == min(9, 8)
+    assert nx_cut(H, out, 2) == stats["cut_after"] == 8 == min(9, 8)
     assert stats["boundaries"].tolist() == [32]  # tie 32/40 (both move 4): smaller position first
 
 
@@ -232,20 +220,20 @@ def test_3elt_cuthill_mckee_line():
     # Line order: reverse Cuthill–McKee from scipy (a bandwidth-reducing order; Cuthill & McKee 1969).
     path = DATASETS / "3elt.txt.gz"
     if not path.exists():
-        pytest.skip(f"shared dataset {path} is not available")
+        pytest.skip(shared_missing(path.name))
     data = np.loadtxt(path, comments="#", dtype=np.int64, ndmin=2)
     g = build_graph(data[:, 0], data[:, 1], source=str(path))
     assert (g.n, g.m) == (4720, 13722)  # counts from ../shared/datasets/CATALOG.md
     order = csgraph.reverse_cuthill_mckee(g.to_scipy().tocsr(), symmetric_mode=True).astype(np.int64)
     k = 8
-    G = _to_nx(g)
+    G = nx_graph(g)
     for eps in (0.0, 0.03):
         rule = balance_rule(None, k, eps, n_nodes=g.n)
         parts = line_cut(order, None, k)
         out, stats = refine_window(g, order, parts, k, rule)
         assert rule.check(np.bincount(out, minlength=k))
-        assert stats["cut_before"] == _nx_cut(G, parts, k)
-        assert stats["cut_after"] == _nx_cut(G, out, k)
+        assert stats["cut_before"] == nx_cut(G, parts, k)
+        assert stats["cut_after"] == nx_cut(G, out, k)
         if eps > 0:
             assert stats["cut_after"] < stats["cut_before"]  # 3 % slack leaves room to move
         else:

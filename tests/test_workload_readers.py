@@ -13,6 +13,8 @@ from partition.errors import InputError, ParameterError
 from partition.workload.log import log_from_lists
 from partition.workload.readers import read_log
 
+from conftest import shared_missing  # noqa: E402
+
 SHARED = Path(__file__).resolve().parents[2] / "shared" / "datasets"
 
 
@@ -110,7 +112,7 @@ def test_retail_baskets_counts():
     """Brijs, Swinnen, Vanhoof & Wets, KDD 1999 (FIMI repository retail.dat); counts from ../shared/datasets/CATALOG.md."""
     path = SHARED / "retail-baskets.dat.gz"
     if not path.exists():
-        pytest.skip("../shared/datasets/retail-baskets.dat.gz is absent (shared datasets folder not mounted)")
+        pytest.skip(shared_missing("retail-baskets.dat.gz"))
     log = read_log(path)
     assert (log.n_requests, log.n_keys, int(log.sizes().sum())) == (88162, 16470, 908577)
     assert log.sizes().max() == 76 and np.median(log.sizes()) == 8  # basket sizes 1–76, median 8 (catalog)

@@ -10,6 +10,8 @@ from partition.workload.coaccess import coaccess_pairs
 from partition.workload.readers import read_log
 from partition.workload.synthetic import library_workload, write_log
 
+from conftest import shared_missing  # noqa: E402
+
 pytestmark = pytest.mark.spark
 SHARED = Path(__file__).resolve().parents[2] / "shared" / "datasets"
 
@@ -47,7 +49,7 @@ def test_spark_equals_memory_on_a_retail_slice(spark, tmp_path):
     """Brijs, Swinnen, Vanhoof & Wets, KDD 1999 (FIMI retail.dat): the first 4,000 baskets."""
     src = SHARED / "retail-baskets.dat.gz"
     if not src.exists():
-        pytest.skip("../shared/datasets/retail-baskets.dat.gz is absent (shared datasets folder not mounted)")
+        pytest.skip(shared_missing("retail-baskets.dat.gz"))
     lines = gzip.open(src, "rt").read().split("\n")[:4000]
     path = tmp_path / "slice.dat"
     path.write_text("\n".join(lines) + "\n")
