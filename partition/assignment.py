@@ -8,7 +8,6 @@ as written, so ``007`` never matches the node ``7``. Writing puts a header
 
 from __future__ import annotations
 
-import os
 
 import numpy as np
 import pyarrow as pa

@@ -102,6 +102,14 @@ class Hierarchy:
     seed: int = 0
     linkage: str = "sum"
 
+    def append(self, parent, picked, c_new, m):
+        """Record one round: parents of the clusters, picked edges, clusters and edges left."""
+        self.parents.append(parent)
+        self.picked.append(picked)
+        self.labels.append(parent[self.labels[-1]])
+        self.sizes.append(int(c_new))
+        self.edges.append(int(m))
+
     @property
     def rounds(self) -> int:
         """Depth: the number of rounds (levels above the nodes)."""
@@ -180,17 +188,42 @@ def build_hierarchy(graph, affinity, seed=0, linkage="sum"):
     h.labels.append(np.arange(n, dtype=np.int64))
     h.sizes.append(n)
     h.edges.append(int(a.shape[0]))
-    c, r = n, 0
-    while edges.a.shape[0]:
-        r += 1
-        parent, c_new, picked, edges = boruvka_round(c, edges, round_seed(seed, r), linkage)
-        h.parents.append(parent)
-        h.picked.append(picked)
-        h.labels.append(parent[h.labels[-1]])
-        h.sizes.append(c_new)
-        h.edges.append(int(edges.a.shape[0]))
-        c = c_new
+    driver_rounds(h, n, 0, edges)
     return h
+
+
+def hierarchy_rounds(h, c, r, step, done, progress=None, where=None):
+    """The round loop of the hierarchy, for both engines: run ``step`` until ``done``, recording every round.
+
+    ``step(c, r) -> (parent, picked, c_new, m, info)`` runs round ``r`` on
+    ``c`` clusters (in memory, or as Spark jobs); ``done(m)`` is asked of the
+    edges left before each round (first of ``h.edges[-1]``). Each round is
+    appended to ``h`` and reported to ``progress`` (``stage``, ``clusters``,
+    ``edges``, ``seconds``, ``where`` and the step's ``info``). Returns the
+    clusters and the round number reached.
+    """
+    import time
+
+    while not done(h.edges[-1]):
+        r += 1
+        t = time.perf_counter()
+        parent, picked, c, m, info = step(c, r)
+        h.append(parent, picked, c, m)
+        if progress is not None:
+            progress({"stage": f"hierarchy round {r}", "clusters": int(c), "edges": int(m),
+                      "seconds": round(time.perf_counter() - t, 3), "where": where, **info})
+    return c, r
+
+
+def driver_rounds(h, c, r, edges, progress=None):
+    """Borůvka rounds in memory on the :class:`CoarseEdges` left, until no edge is left (see :func:`hierarchy_rounds`)."""
+    state = [edges]
+
+    def step(c, r):
+        parent, c_new, picked, state[0] = boruvka_round(c, state[0], round_seed(h.seed, r), h.linkage)
+        return parent, picked, c_new, state[0].a.shape[0], {}
+
+    return hierarchy_rounds(h, c, r, step, lambda m: m == 0, progress, "driver")
 
 
 def boruvka_round(c, edges, hash_seed, linkage="sum"):

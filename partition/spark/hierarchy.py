@@ -37,7 +37,7 @@ import numpy as np
 
 from partition.atomic import write_text
 from partition.errors import ParameterError
-from partition.hierarchy import CoarseEdges, Hierarchy, Picked, boruvka_round
+from partition.hierarchy import CoarseEdges, Hierarchy, Picked, driver_rounds, hierarchy_rounds
 from partition.rules import LINKAGES, pair_hash, round_seed
 from partition.spark.frames import dense_rank, materialise, to_numpy
 from partition.spark.session import describe
@@ -240,49 +240,28 @@ def build_hierarchy_df(spark, aff, n, seed=0, linkage="sum", work=None, resume=F
         par = to_numpy(spark.read.parquet(str(_round_dir(work, r) / "parent.parquet")), ["s", "parent"],
                        sort=["s"])["parent"].astype(np.int64)
         pk = spark.read.parquet(str(_round_dir(work, r) / "picked.parquet"))
-        _append(h, par, _picked(pk), int(info["clusters"]), int(info["edges"]))
+        h.append(par, _picked(pk), int(info["clusters"]), int(info["edges"]))
         c = int(info["clusters"])
-    r = start
-    edges = spark.read.parquet(str(_round_dir(work, r) / "edges.parquet"))
-    m = h.edges[-1]
-    while m > collect_edges:
-        r += 1
-        t = time.perf_counter()
+    edges = [spark.read.parquet(str(_round_dir(work, start) / "edges.parquet"))]
+
+    def step(c, r):
         describe(spark, f"hierarchy: round {r}")
-        parent, picked, coarse, c_new, jumps = spark_round(spark, edges, c, r, seed, linkage, work)
+        parent, picked, coarse, c_new, jumps = spark_round(spark, edges[0], c, r, seed, linkage, work)
         m = int(coarse.count())
         par = to_numpy(parent, ["s", "parent"], sort=["s"])["parent"].astype(np.int64)
-        _append(h, par, _picked(picked), c_new, m)
         write_text(_marker(work, r), json.dumps({"round": r, "clusters": c_new, "edges": m, "jumps": jumps}))
-        c, edges = c_new, coarse
-        if progress is not None:
-            progress({"stage": f"hierarchy round {r}", "clusters": c, "edges": m,
-                      "seconds": round(time.perf_counter() - t, 3), "where": "spark", "jumps": jumps})
-    if m:
+        edges[0] = coarse
+        return par, _picked(picked), c_new, m, {"jumps": jumps}
+
+    c, r = hierarchy_rounds(h, c, start, step, lambda m: m <= collect_edges, progress, "spark")
+    if h.edges[-1]:
         describe(spark, "hierarchy: collect")
         cols = ["a", "b", "total", "cnt", "best", "xa", "xb"]
-        got = to_numpy(edges, cols, sort=["a", "b"])
-        ce = CoarseEdges(*(got[x].astype(np.int64) for x in cols))
-        while ce.a.shape[0]:
-            r += 1
-            t = time.perf_counter()
-            parent, c_new, picked, ce = boruvka_round(c, ce, round_seed(seed, r), linkage)
-            _append(h, parent, picked, c_new, int(ce.a.shape[0]))
-            c = c_new
-            if progress is not None:
-                progress({"stage": f"hierarchy round {r}", "clusters": c, "edges": int(ce.a.shape[0]),
-                          "seconds": round(time.perf_counter() - t, 3), "where": "driver"})
+        got = to_numpy(edges[0], cols, sort=["a", "b"])
+        driver_rounds(h, c, r, CoarseEdges(*(got[x].astype(np.int64) for x in cols)), progress)
     return h
 
 
 def _picked(df):
     got = to_numpy(df, ["a", "b", "val", "xa", "xb"], sort=["a", "b"])
     return Picked(*(got[x].astype(np.int64) for x in ("a", "b", "val", "xa", "xb")))
-
-
-def _append(h, parent, picked, c_new, m):
-    h.parents.append(parent)
-    h.picked.append(picked)
-    h.labels.append(parent[h.labels[-1]])
-    h.sizes.append(int(c_new))
-    h.edges.append(int(m))

@@ -26,7 +26,7 @@ import numpy as np
 
 from partition.atomic import atomic_path
 from partition.errors import ParameterError
-from partition.workload.log import RequestLog, assemble_log
+from partition.workload.log import assemble_log
 
 __all__ = ["LibraryWorkload", "library_workload", "write_log"]
 
