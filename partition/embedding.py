@@ -33,7 +33,8 @@ from scipy.sparse.csgraph import connected_components
 from partition.errors import ParameterError
 from partition.rules import canonical_labels
 
-__all__ = ["linear_order", "orient_clusters", "positions", "forest_walk", "spectral_order"]
+__all__ = ["linear_order", "orient_clusters", "orient_levels", "orientation_scores", "positions", "forest_walk",
+           "spectral_order"]
 
 _DENSE_LIMIT = 300  # components up to this size use a dense eigensolver
 _COARSE_LIMIT = 800  # largest coarse problem solved densely
@@ -148,23 +149,44 @@ def orient_clusters(hierarchy, graph, pos):
     via linear embedding", WSDM 2016 (leaf orders of the hierarchy; turning
     a subtree over keeps one).
     """
-    n = graph.n
     rows = graph.rows().astype(np.int64)
     cols = graph.indices.astype(np.int64)
+
+    def level_scores(r, lab, c, pos, start, size):
+        score = np.zeros(c, dtype=np.int64)
+        orientation_scores(lab, pos, start, size, rows, cols, score)  # CSR: both directions of every edge
+        return score
+
+    return orient_levels(hierarchy, pos, level_scores)
+
+
+def orient_levels(hierarchy, pos, level_scores):
+    """The level loop of :func:`orient_clusters`, for both engines.
+
+    ``level_scores(r, labels, clusters, pos, start, size)`` returns every
+    level-``r`` cluster's total score (:func:`orientation_scores` over the
+    directed edges, in memory or as a Spark job); clusters with a positive
+    score are turned end for end, from the level below the top down to level 1.
+    """
+    n = pos.shape[0]
     for r in range(hierarchy.rounds - 1, 0, -1):
         lab, c = hierarchy.labels[r], hierarchy.sizes[r]
         start = np.full(c, n, dtype=np.int64)
         np.minimum.at(start, lab, pos)
         size = np.bincount(lab, minlength=c).astype(np.int64)
-        lu, lv = lab[rows], lab[cols]
-        out = np.flatnonzero(lu != lv)
-        cu = lu[out]
-        t = 2 * (pos[rows[out]] - start[cu]) - (size[cu] - 1)
-        score = np.zeros(c, dtype=np.int64)
-        np.add.at(score, cu, np.where(pos[cols[out]] < start[cu], t, -t))
-        turn = (score > 0)[lab]
+        turn = (level_scores(r, lab, c, pos, start, size) > 0)[lab]
         pos = np.where(turn, 2 * start[lab] + size[lab] - 1 - pos, pos)
     return pos
+
+
+def orientation_scores(lab, pos, start, size, x, y, acc):
+    """Add to ``acc`` the rule-10 score of every directed edge ``x → y`` that leaves its cluster (in place)."""
+    lx = lab[x]
+    out = lx != lab[y]
+    lx = lx[out]
+    st = start[lx]
+    t = 2 * (pos[x[out]] - st) - (size[lx] - 1)
+    np.add.at(acc, lx, np.where(pos[y[out]] < st, t, -t))
 
 
 def positions(order):

@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from partition.embedding import linear_order, positions
+from partition.embedding import linear_order, orient_levels, orientation_scores, positions
 from partition.spark.session import describe
 
 __all__ = ["linear_order_df", "directed_edges"]
@@ -24,14 +24,8 @@ __all__ = ["linear_order_df", "directed_edges"]
 
 def _scores(u, v, w, a, acc):
     # rule 10 score of every cluster: each edge leaving it, from both ends
-    lab, pos, start, size = a["lab"], a["pos"], a["start"], a["size"]
     for x, y in ((u, v), (v, u)):
-        lx = lab[x]
-        m = lx != lab[y]
-        lx = lx[m]
-        st = start[lx]
-        t = 2 * (pos[x[m]] - st) - (size[lx] - 1)
-        np.add.at(acc, lx, np.where(pos[y[m]] < st, t, -t))
+        orientation_scores(a["lab"], a["pos"], a["start"], a["size"], x, y, acc)
 
 
 def directed_edges(edges):
@@ -76,16 +70,12 @@ def linear_order_df(spark, hierarchy, edges, orient=True, blocks=None):
             from partition.spark.blocks import EdgeBlocks
 
             blocks = EdgeBlocks(spark, edges.select("u", "v", F.lit(1).cast("long").alias("wi")), n, True)
+        def level_scores(r, lab, c, pos, start, size):
+            describe(spark, f"order: orientation level {r}")
+            return blocks.sum_over(_scores, c, lab=np.asarray(lab, dtype=np.int64), pos=pos, start=start, size=size)
+
         try:
-            for r in range(hierarchy.rounds - 1, 0, -1):
-                describe(spark, f"order: orientation level {r}")
-                lab, c = hierarchy.labels[r], hierarchy.sizes[r]
-                start = np.full(c, n, dtype=np.int64)
-                np.minimum.at(start, lab, pos)
-                size = np.bincount(lab, minlength=c).astype(np.int64)
-                sc = blocks.sum_over(_scores, c, lab=np.asarray(lab, dtype=np.int64), pos=pos, start=start, size=size)
-                turn = (sc > 0)[lab]
-                pos = np.where(turn, 2 * start[lab] + size[lab] - 1 - pos, pos)
+            pos = orient_levels(hierarchy, pos, level_scores)
         finally:
             if own:
                 blocks.release()
