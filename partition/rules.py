@@ -77,6 +77,8 @@ import numpy as np
 
 __all__ = [
     "AFFINITY_SCALE",
+    "MAX_EXACT_WEIGHT",
+    "weights_kept",
     "AFFINITY_BITS",
     "WEDGE_BITS",
     "LINKAGES",
@@ -102,6 +104,33 @@ DEFAULT_HUB_CAP = 1000
 _GOLDEN = np.uint64(0x9E3779B97F4A7C15)
 _M1 = np.uint64(0xBF58476D1CE4E5B9)
 _M2 = np.uint64(0x94D049BB133111EB)
+
+
+MAX_EXACT_WEIGHT = 2**53  # integral float64 weights below this convert exactly
+
+
+def weights_kept(kind, fractional, top, total):
+    """Whether integral edge weights are counted as they are (scale 1) rather than put in fixed point (rule 1).
+
+    One test for both engines; they differ only in how they find its inputs
+    (array reductions in memory, aggregates on Spark).
+
+    Parameters
+    ----------
+    kind : {"fm", "cut"}
+        ``"fm"``: the pairwise moves' weights (total below ``2**53``);
+        ``"cut"``: the cut, swap and window weights (largest below
+        :data:`MAX_EXACT_WEIGHT`, total below ``2**62``).
+    fractional : bool
+        Some weight has a fraction part.
+    top, total : float
+        Largest weight, and the total over both directions of every edge.
+    """
+    if fractional:
+        return False
+    if kind == "fm":
+        return total < 2.0**53
+    return top < MAX_EXACT_WEIGHT and total < 2.0**62
 
 
 def quantise(x):

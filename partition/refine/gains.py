@@ -21,7 +21,7 @@ import numba
 import numpy as np
 
 from partition.errors import ParameterError
-from partition.rules import AFFINITY_SCALE, quantise
+from partition.rules import AFFINITY_SCALE, MAX_EXACT_WEIGHT, quantise, weights_kept
 
 __all__ = [
     "cut_weights",
@@ -32,7 +32,6 @@ __all__ = [
     "MAX_EXACT_WEIGHT",
 ]
 
-MAX_EXACT_WEIGHT = 2**53  # integral float64 weights below this convert exactly
 _EMPTY_I64 = np.empty(0, dtype=np.int64)
 
 
@@ -70,7 +69,7 @@ def cut_weights(edge_weights):
     if not np.isfinite(w).all() or (w.size and w.min() < 0):
         raise ParameterError("edge weights must be finite and >= 0")
     total = float(w.sum())
-    if w.size == 0 or (np.all(w == np.floor(w)) and float(w.max()) < MAX_EXACT_WEIGHT and total < 2.0**62):
+    if w.size == 0 or weights_kept("cut", not np.all(w == np.floor(w)), float(w.max()), total):
         return w.astype(np.int64), 1
     if total * AFFINITY_SCALE >= 2.0**62:
         raise ParameterError(

@@ -18,7 +18,7 @@ import numpy as np
 
 from partition.errors import ParameterError
 from partition.refine.rounds import pair_rounds
-from partition.rules import AFFINITY_SCALE, quantise
+from partition.rules import AFFINITY_SCALE, quantise, weights_kept
 
 __all__ = [
     "refine_pairs",
@@ -107,7 +107,7 @@ def fixed_point_weights(graph):
     if w.size and (not np.all(np.isfinite(w)) or w.min() < 0):
         raise ParameterError("edge weights must be finite and >= 0 for refinement")
     total = float(w.sum())
-    if np.all(w == np.floor(w)) and total < 2.0**53:
+    if weights_kept("fm", not np.all(w == np.floor(w)), float(w.max(initial=0.0)), total):
         return w.astype(np.int64), 1
     if total * AFFINITY_SCALE >= 2.0**62:
         raise ParameterError(f"total edge weight {total:.6g} is too large for fixed point; rescale the weights")

@@ -37,7 +37,7 @@ from partition.refine.fm import fm_pair
 from partition.refine.rounds import pair_rounds, swap_rounds, window_rounds
 from partition.refine.swaps import swap_pair
 from partition.refine.window_dp import default_window, window_dp_round
-from partition.rules import AFFINITY_SCALE
+from partition.rules import AFFINITY_SCALE, weights_kept
 from partition.spark.blocks import group_chunks
 from partition.spark.session import describe
 
@@ -61,12 +61,7 @@ def int_weights(spark, sg, kind):
     st = sg.edges.agg(F.sum("w").alias("t"), F.max("w").alias("mx"),
                       F.sum(F.when(F.col("w") != F.floor("w"), 1).otherwise(0)).alias("frac")).collect()[0]
     total, top, frac = float(2 * (st["t"] or 0.0)), float(st["mx"] or 0.0), int(st["frac"] or 0)
-    if kind == "fm":
-        exact = frac == 0 and total < 2.0**53
-    else:
-        from partition.refine.gains import MAX_EXACT_WEIGHT
-
-        exact = frac == 0 and top < MAX_EXACT_WEIGHT and total < 2.0**62
+    exact = weights_kept(kind, frac > 0, top, total)
     if exact:
         return sg.edges.withColumn("wi", F.col("w").cast("long")), False
     # quantise: round half to even of w * 2**20 (rule 1)
