@@ -53,6 +53,8 @@ from partition.rules import AFFINITIES, AFFINITY_SCALE, DEFAULT_HUB_CAP, WEDGE_B
 
 __all__ = [
     "edge_affinity",
+    "check_affinity_options",
+    "weight_value",
     "jaccard_value",
     "ppr_value",
     "common_neighbours",
@@ -104,17 +106,7 @@ def edge_affinity(graph, method="jaccard", alpha=0.15, steps=2, hub_cap=DEFAULT_
     N. Chiba and T. Nishizeki, "Arboricity and subgraph listing algorithms",
     SIAM J. Comput. 14(1), 1985.
     """
-    if method not in METHODS:
-        raise ParameterError(f"affinity method must be one of {', '.join(METHODS)}, got {method!r}")
-    if method == "ppr":
-        alpha = float(alpha)
-        if not (0.0 < alpha < 1.0):
-            raise ParameterError(f"alpha must lie strictly between 0 and 1, got {alpha!r}")
-        if steps not in (1, 2):
-            raise ParameterError(f"steps must be 1 or 2, got {steps!r}")
-    if isinstance(hub_cap, bool) or int(hub_cap) != hub_cap or hub_cap < 1:
-        raise ParameterError(f"hub_cap must be a whole number >= 1, got {hub_cap!r}")
-    hub_cap = int(hub_cap)
+    hub_cap = check_affinity_options(method, alpha, steps, hub_cap)
     size = graph.indices.shape[0]
 
     if method == "unit":
@@ -123,10 +115,7 @@ def edge_affinity(graph, method="jaccard", alpha=0.15, steps=2, hub_cap=DEFAULT_
         w = graph.edge_weight_array()
         if not np.isfinite(w).all() or (w < 0).any():
             raise ParameterError("edge weights must be finite and >= 0 for weight affinity")
-        top = float(w.max(initial=0.0))
-        if top <= 0.0:
-            return np.zeros(size, dtype=np.int64)
-        return quantise(w / top)
+        return weight_value(w, float(w.max(initial=0.0)))
 
     deg = graph.degrees().astype(np.int64)
     rows = graph.rows()
@@ -139,6 +128,35 @@ def edge_affinity(graph, method="jaccard", alpha=0.15, steps=2, hub_cap=DEFAULT_
     else:
         wsum = np.zeros(size, dtype=np.int64)
     return ppr_value(wsum, du, dv, alpha)
+
+
+def check_affinity_options(method, alpha, steps, hub_cap):
+    """Check the options of an affinity method (both engines); returns the hub cap as int.
+
+    Raises
+    ------
+    ParameterError
+        Unknown method; ``ppr`` with α outside ``(0, 1)`` or steps not 1 or 2;
+        a hub cap that is not a whole number ``>= 1``.
+    """
+    if method not in METHODS:
+        raise ParameterError(f"affinity method must be one of {', '.join(METHODS)}, got {method!r}")
+    if method == "ppr":
+        if not (0.0 < float(alpha) < 1.0):
+            raise ParameterError(f"alpha must lie strictly between 0 and 1, got {alpha!r}")
+        if steps not in (1, 2):
+            raise ParameterError(f"steps must be 1 or 2, got {steps!r}")
+    if isinstance(hub_cap, bool) or int(hub_cap) != hub_cap or hub_cap < 1:
+        raise ParameterError(f"hub_cap must be a whole number >= 1, got {hub_cap!r}")
+    return int(hub_cap)
+
+
+def weight_value(w, top):
+    """Fixed-point affinity from input weights: ``quantise(w / top)`` with ``top`` the largest weight (0 if none)."""
+    w = np.asarray(w, dtype=np.float64)
+    if top <= 0.0:
+        return np.zeros(w.shape[0], dtype=np.int64)
+    return quantise(w / float(top))
 
 
 def jaccard_value(count, du, dv):

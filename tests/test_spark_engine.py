@@ -148,6 +148,13 @@ def test_affinity_and_hierarchy_match_memory(spark, mixed_graph, tmp_path):
         split = to_numpy(edge_affinity_df(sg2, method, hub_cap=20, task_edges=300), ["u", "v", "aff"],
                          sort=["u", "v"])
         assert np.array_equal(split["aff"], edge_affinity(g2, method, hub_cap=20)[up2])
+    wpath = tmp_path / "weighted.txt"  # the same graph with weights 1, 1.5, ..., 3: the input-weight affinities
+    wpath.write_text("".join(f"{a} {b} {1 + ((a * 7 + b) % 5) / 2}\n" for a, b in G.edges()))
+    gw, sgw = read_graph(str(wpath), weighted=True), read_graph_df(spark, str(wpath), weighted=True)
+    upw = gw.rows() < gw.indices
+    for method in ("weights", "unit"):
+        got = to_numpy(edge_affinity_df(sgw, method), ["u", "v", "aff"], sort=["u", "v"])
+        assert np.array_equal(got["aff"], edge_affinity(gw, method)[upw]), method
     # collect_edges=0: every round runs as Spark jobs (pointer jumping, contraction)
     rows = []
     h = build_hierarchy_df(spark, aff, sg.n, seed=4, work=tmp_path, collect_edges=0, progress=rows.append)

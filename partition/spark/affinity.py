@@ -16,9 +16,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from partition.affinity import DEFAULT_HUB_CAP, METHODS
-from partition.errors import ParameterError
-from partition.rules import AFFINITY_SCALE, WEDGE_BITS, quantise, quantise_ratio
+from partition.affinity import DEFAULT_HUB_CAP, check_affinity_options, jaccard_value, ppr_value, weight_value
+from partition.rules import AFFINITY_SCALE
 from partition.spark.triangles import TASK_EDGES, colour_count, triangle_credits_df
 
 __all__ = ["degrees", "common_neighbours_df", "edge_affinity_df"]
@@ -69,18 +68,14 @@ def common_neighbours_df(edges, hub_cap=DEFAULT_HUB_CAP, m=None, task_edges=TASK
 
 
 def _value_fn(method, alpha):
-    beta = 1.0 - alpha
-
     def fn(batches):
         for pdf in batches:
             du = pdf["du"].to_numpy(np.int64)
             dv = pdf["dv"].to_numpy(np.int64)
-            c = pdf["c"].to_numpy(np.int64)
             if method == "jaccard":
-                aff = quantise_ratio(c + 2, du + dv - c)
+                aff = jaccard_value(pdf["c"].to_numpy(np.int64), du, dv)
             else:
-                s = pdf["s"].to_numpy(np.int64).astype(np.float64) / float(1 << WEDGE_BITS)
-                aff = quantise((1.0 + beta * s) / np.maximum(du, dv).astype(np.float64))
+                aff = ppr_value(pdf["s"].to_numpy(np.int64), du, dv, alpha)
             yield pdf[["u", "v"]].assign(aff=aff)
 
     return fn
@@ -120,23 +115,16 @@ def edge_affinity_df(sg, method="jaccard", alpha=0.15, steps=2, hub_cap=DEFAULT_
     """
     from pyspark.sql import functions as F
 
-    if method not in METHODS:
-        raise ParameterError(f"affinity method must be one of {', '.join(METHODS)}, got {method!r}")
-    if isinstance(hub_cap, bool) or int(hub_cap) != hub_cap or hub_cap < 1:
-        raise ParameterError(f"hub_cap must be a whole number >= 1, got {hub_cap!r}")
-    if method == "ppr" and (not 0.0 < float(alpha) < 1.0 or steps not in (1, 2)):
-        raise ParameterError("ppr needs 0 < alpha < 1 and steps in (1, 2)")
+    hub_cap = check_affinity_options(method, alpha, steps, hub_cap)
     edges = sg.edges
     if method == "unit":
         return edges.select("u", "v", F.lit(AFFINITY_SCALE).cast("long").alias("aff"))
     if method == "weights":
-        top = edges.agg(F.max("w")).collect()[0][0] or 0.0
-        if top <= 0:
-            return edges.select("u", "v", F.lit(0).cast("long").alias("aff"))
+        top = float(edges.agg(F.max("w")).collect()[0][0] or 0.0)
 
         def scale(batches):
             for pdf in batches:
-                yield pdf[["u", "v"]].assign(aff=quantise(pdf["w"].to_numpy(np.float64) / float(top)))
+                yield pdf[["u", "v"]].assign(aff=weight_value(pdf["w"].to_numpy(np.float64), top))
 
         return edges.select("u", "v", "w").mapInPandas(scale, "u long, v long, aff long")
     cn = common_neighbours_df(edges, int(hub_cap), m=sg.m, task_edges=int(task_edges))
