@@ -85,6 +85,9 @@ __all__ = [
     "quantise",
     "quantise_ratio",
     "mix64",
+    "SPLITMIX_GAMMA",
+    "SPLITMIX_M1",
+    "SPLITMIX_M2",
     "pair_hash",
     "round_seed",
     "edge_order",
@@ -101,9 +104,12 @@ AFFINITIES = ("jaccard", "ppr", "weights", "unit")
 DEFAULT_HUB_CAP = 1000
 """Nodes of higher degree credit no common neighbour (:mod:`partition.affinity`)."""
 
-_GOLDEN = np.uint64(0x9E3779B97F4A7C15)
-_M1 = np.uint64(0xBF58476D1CE4E5B9)
-_M2 = np.uint64(0x94D049BB133111EB)
+# splitmix64 (Steele, Lea & Flood 2014; the constants of S. Vigna's public-domain splitmix64.c): every
+# 64-bit mix of the project uses these, compiled kernels included
+SPLITMIX_GAMMA = np.uint64(0x9E3779B97F4A7C15)
+SPLITMIX_M1 = np.uint64(0xBF58476D1CE4E5B9)
+SPLITMIX_M2 = np.uint64(0x94D049BB133111EB)
+_GOLDEN, _M1, _M2 = SPLITMIX_GAMMA, SPLITMIX_M1, SPLITMIX_M2
 
 
 MAX_EXACT_WEIGHT = 2**53  # integral float64 weights below this convert exactly

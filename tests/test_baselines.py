@@ -21,7 +21,8 @@ from partition.balance import balance_rule
 from partition.baselines import METHODS, run_baseline
 from partition.baselines.labelprop import cut_weight, label_propagation
 from partition.baselines.repair import repair_balance
-from partition.baselines.simple import hash_keys, hash_partition, mix64, random_partition, range_partition
+from partition.baselines.simple import hash_keys, hash_partition, random_partition, range_partition
+from partition.rules import mix64
 from partition.baselines.streaming import fennel, fennel_alpha, ldg, stream_order
 from partition.errors import ParameterError
 from partition.graph import build_graph
@@ -234,7 +235,9 @@ def test_integer_hash_is_splitmix64():
         for i, x in zip(ids.tolist(), got.tolist()):
             state = (i + seed * 0x9E3779B97F4A7C15) & ((1 << 64) - 1)
             assert x == _splitmix64_reference(state)
-    assert mix64(np.array([0], dtype=np.uint64))[0] == 0
+    # the one splitmix64 of the project (partition.rules.mix64) is next() itself
+    assert [int(x) for x in mix64(np.array([0, 5, 2**64 - 1], dtype=np.uint64))] == \
+        [_splitmix64_reference(s) for s in (0, 5, 2**64 - 1)]
 
 
 def test_string_hash_is_blake2b_and_independent_of_python_hash_seed():

@@ -23,37 +23,11 @@ import hashlib
 import numpy as np
 
 from partition.baselines.repair import prepare, repair_balance
+from partition.rules import SPLITMIX_GAMMA, mix64
 
-__all__ = ["mix64", "hash_keys", "hash_partition", "range_partition", "random_partition", "cut_sequence"]
+__all__ = ["hash_keys", "hash_partition", "range_partition", "random_partition", "cut_sequence"]
 
-_GOLDEN = 0x9E3779B97F4A7C15
-_M1 = np.uint64(0xBF58476D1CE4E5B9)
-_M2 = np.uint64(0x94D049BB133111EB)
 _MASK = (1 << 64) - 1
-
-
-def mix64(z):
-    """The splitmix64 output function applied to each uint64 (wrapping arithmetic).
-
-    Parameters
-    ----------
-    z : ndarray of uint64
-
-    Returns
-    -------
-    ndarray of uint64
-
-    References
-    ----------
-    G. L. Steele Jr., D. Lea and C. H. Flood, "Fast splittable pseudorandom
-    number generators", OOPSLA 2014 (the constants are those of S. Vigna's
-    public-domain ``splitmix64.c``).
-    """
-    z = np.asarray(z, dtype=np.uint64)
-    with np.errstate(over="ignore"):
-        z = (z ^ (z >> np.uint64(30))) * _M1
-        z = (z ^ (z >> np.uint64(27))) * _M2
-        return z ^ (z >> np.uint64(31))
 
 
 def hash_keys(ids, seed=0):
@@ -87,9 +61,9 @@ def hash_keys(ids, seed=0):
     seed = int(seed)
     if ids.dtype.kind in "iu":
         state = ids.astype(np.int64, copy=False).view(np.uint64)
-        offset = np.uint64(((seed + 1) * _GOLDEN) & _MASK)
+        offset = np.uint64((seed * int(SPLITMIX_GAMMA)) & _MASK)
         with np.errstate(over="ignore"):
-            return mix64(state + offset)
+            return mix64(state + offset)  # rules.mix64 adds γ once more: the state id + (seed + 1) · γ
     key = seed.to_bytes(max(8, (seed.bit_length() + 7) // 8), "little")
     return np.fromiter(
         (

@@ -29,14 +29,13 @@ import pyarrow.compute as pc
 
 from partition.errors import ParameterError
 from partition.node_shards import read_node_shards
+from partition.rules import SPLITMIX_GAMMA, SPLITMIX_M1, SPLITMIX_M2
 
 __all__ = ["Placement", "fnv1a64", "string_key_hash"]
 
 _FNV_OFFSET = np.uint64(0xCBF29CE484222325)
 _FNV_PRIME = np.uint64(0x100000001B3)
-_GOLDEN = np.uint64(0x9E3779B97F4A7C15)
-_M1 = np.uint64(0xBF58476D1CE4E5B9)
-_M2 = np.uint64(0x94D049BB133111EB)
+_GOLDEN, _M1, _M2 = SPLITMIX_GAMMA, SPLITMIX_M1, SPLITMIX_M2  # numba reads them as compile-time constants
 _SIGN = np.uint64(1 << 63)
 _ALL = np.uint64(0xFFFFFFFFFFFFFFFF)
 _HASH_MASK = _ALL  # bits of the string hash in use; a narrower mask forces collisions in tests
