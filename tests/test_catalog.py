@@ -7,7 +7,6 @@ import gzip
 import hashlib
 import io
 import json
-import re
 import struct
 import tarfile
 import threading

@@ -4,8 +4,6 @@ from __future__ import annotations
 
 import bz2
 import gzip
-import re
-from pathlib import Path
 
 import networkx as nx
 import numpy as np

@@ -10,8 +10,6 @@ from __future__ import annotations
 
 import gzip
 import json
-import re
-from pathlib import Path
 
 import networkx as nx
 import numpy as np

@@ -3,7 +3,6 @@
 import gzip
 from pathlib import Path
 
-import numpy as np
 import pytest
 
 from partition.workload.coaccess import coaccess_pairs
