@@ -216,7 +216,7 @@ def hierarchy_rounds(h, c, r, step, done, progress=None, where=None):
 
 
 def driver_rounds(h, c, r, edges, progress=None):
-    """Borůvka rounds in memory on the :class:`CoarseEdges` left, until no edge is left (see :func:`hierarchy_rounds`)."""
+    """Borůvka rounds in memory on the :class:`CoarseEdges` left until none is left (:func:`hierarchy_rounds`)."""
     state = [edges]
 
     def step(c, r):

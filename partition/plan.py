@@ -69,7 +69,7 @@ SPECTRAL_NODE_LIMIT = 300_000  # "auto" starts leave the spectral order out abov
 ENGINES = ("memory", "spark")
 MODES = ("distributed", "full")
 DISTRIBUTED_STARTS = ("hierarchy", "spectral")
-"""Starts the Spark engine's distributed mode computes: the hierarchy's order in Spark, the spectral one on the driver."""
+"""Starts of the Spark engine's distributed mode: the hierarchy's order in Spark, the spectral one on the driver."""
 
 
 def resolve_starts(starts, n, m):

@@ -165,7 +165,7 @@ def shard_index(parts, k):
 
 def refine_pairs(graph, parts, rule, weights, make_round, schedule="round_robin", max_rounds=None, seed=0, tol=0.0,
                  t0=None):
-    """A pairwise refinement step end to end: fixed-point weights, :func:`~partition.refine.rounds.pair_rounds`, statistics.
+    """A pairwise refinement step end to end: fixed-point weights, the pair rounds, statistics.
 
     Parameters
     ----------

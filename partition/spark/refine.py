@@ -199,7 +199,7 @@ def edge_blocks(spark, sg, kind):
 
 
 def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, stall_fraction=0.0, tol=0.0,
-             max_rounds=None, progress=None, blocks=None):
+             max_rounds=None, progress=None, *, blocks):
     """:func:`partition.refine.fm.refine_fm` with ``schedule="matched"``, units in Spark tasks.
 
     Parameters
@@ -216,8 +216,8 @@ def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, st
         best; the rounds stop after two in a row that each gain at most
         ``tol`` times the start-of-round cut (``tol = 0``: rule off).
     progress : callable or None
-    blocks : partition.spark.blocks.EdgeBlocks or None
-        The edges with :func:`int_weights` ``"fm"`` (built and dropped here when ``None``).
+    blocks : partition.spark.blocks.EdgeBlocks
+        The edges with :func:`int_weights` ``"fm"`` (:func:`edge_blocks`).
 
     Returns
     -------
@@ -230,8 +230,6 @@ def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, st
     """
     k = rule.k
     cap, floor = int(rule.cap), int(rule.floor)
-    own = blocks is None
-    blocks = edge_blocks(spark, sg, "fm") if own else blocks
     parts = np.asarray(parts, dtype=np.int64).copy()
     nw = np.asarray(nw, dtype=np.int64)
 
@@ -247,17 +245,13 @@ def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, st
         current, gains, changed, _ = units(current, pairs)
         return current, gains, changed
 
-    try:
-        parts, _ = pair_rounds(parts, k, lambda p: blocks.cut_matrix(p, k), run_round, "matched", max_rounds,
-                               seed, tol, on_round=_report(progress, "fm"))
-    finally:
-        if own:
-            blocks.release()
+    parts, _ = pair_rounds(parts, k, lambda p: blocks.cut_matrix(p, k), run_round, "matched", max_rounds,
+                           seed, tol, on_round=_report(progress, "fm"))
     return parts
 
 
-def spark_swaps(spark, sg, parts, rule, node_weights, max_rounds=20, tol=1e-3, iterations=4, progress=None,
-                blocks=None):
+def spark_swaps(spark, sg, parts, rule, node_weights, max_rounds=20, tol=1e-3, iterations=4, progress=None, *,
+                blocks):
     """:func:`partition.refine.swaps.refine_swaps` with ``schedule="matched"``, units in Spark tasks.
 
     Parameters
@@ -271,8 +265,8 @@ def spark_swaps(spark, sg, parts, rule, node_weights, max_rounds=20, tol=1e-3, i
     max_rounds, tol, iterations
         As :func:`partition.refine.swaps.refine_swaps`.
     progress : callable or None
-    blocks : partition.spark.blocks.EdgeBlocks or None
-        The edges with :func:`int_weights` ``"cut"`` (built and dropped here when ``None``).
+    blocks : partition.spark.blocks.EdgeBlocks
+        The edges with :func:`int_weights` ``"cut"`` (:func:`edge_blocks`).
 
     Returns
     -------
@@ -285,8 +279,6 @@ def spark_swaps(spark, sg, parts, rule, node_weights, max_rounds=20, tol=1e-3, i
     """
     k = rule.k
     cap, floor = int(rule.cap), int(rule.floor)
-    own = blocks is None
-    blocks = edge_blocks(spark, sg, "cut") if own else blocks
     unit_w = blocks.unit_w
     parts = np.asarray(parts, dtype=np.int64).copy()
     nw = np.ones(parts.shape[0], dtype=np.int64) if node_weights is None else np.asarray(node_weights, np.int64)
@@ -305,16 +297,12 @@ def spark_swaps(spark, sg, parts, rule, node_weights, max_rounds=20, tol=1e-3, i
         current, gains, _, moved = units(current, pairs)
         return current, gains, moved
 
-    try:
-        parts, _ = swap_rounds(parts, k, None, lambda p: blocks.cut_matrix(p, k), run_round, "matched", max_rounds,
-                               tol, on_round=_report(progress, "swaps"))
-    finally:
-        if own:
-            blocks.release()
+    parts, _ = swap_rounds(parts, k, None, lambda p: blocks.cut_matrix(p, k), run_round, "matched", max_rounds,
+                           tol, on_round=_report(progress, "swaps"))
     return parts
 
 
-def spark_window(spark, sg, order, parts, rule, node_weights, w=None, max_rounds=16, progress=None, blocks=None):
+def spark_window(spark, sg, order, parts, rule, node_weights, w=None, max_rounds=16, progress=None, *, blocks):
     """:func:`partition.refine.window_dp.refine_window` (``chain_length=1``), chains in Spark tasks.
 
     Parameters
@@ -330,8 +318,8 @@ def spark_window(spark, sg, order, parts, rule, node_weights, w=None, max_rounds
         Window half-width (default :func:`~partition.refine.window_dp.default_window`).
     max_rounds : int
     progress : callable or None
-    blocks : partition.spark.blocks.EdgeBlocks or None
-        The edges with :func:`int_weights` ``"cut"`` (built and dropped here when ``None``).
+    blocks : partition.spark.blocks.EdgeBlocks
+        The edges with :func:`int_weights` ``"cut"`` (:func:`edge_blocks`).
 
     Returns
     -------
@@ -355,8 +343,6 @@ def spark_window(spark, sg, order, parts, rule, node_weights, w=None, max_rounds
     np.cumsum(nwv[order], out=prefix[1:])
     pos = np.empty(n, dtype=np.int64)
     pos[order] = np.arange(n, dtype=np.int64)
-    own = blocks is None
-    blocks = edge_blocks(spark, sg, "cut") if own else blocks
     unit_w = blocks.unit_w
 
     def solve(c, p, q, ew, full, fixed, bb):
@@ -390,11 +376,7 @@ def spark_window(spark, sg, order, parts, rule, node_weights, w=None, max_rounds
             gain += g
         return nb, gain
 
-    try:
-        b, _ = window_rounds(b, k, run_round, 1, max_rounds, on_round=_report(progress, "window"))
-    finally:
-        if own:
-            blocks.release()
+    b, _ = window_rounds(b, k, run_round, 1, max_rounds, on_round=_report(progress, "window"))
     return np.asarray(parts_from_boundaries(order, b, k), dtype=np.int64)
 
 

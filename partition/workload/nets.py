@@ -365,7 +365,6 @@ def refine_nets(nets, parts, loads, k, eps, max_passes=20, max_stall=2000, tight
             progress({"stage": "nets: cap step", "cap": int(step_cap), "rebalance_moves": int(m),
                       "passes": len([p for p in passes if p["cap"] == step_cap]),
                       "connectivity": int(_connectivity(phi))})
-    after_balance = None
     after = int(_connectivity(phi))
     report = {"cap": int(cap), "connectivity_before": before, "connectivity_after": after, "rebalance_moves": int(moved), "passes": passes,
               "max_load": int(shard_loads.max()), "nets": int(nets.indptr.size - 1)}
