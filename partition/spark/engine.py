@@ -45,6 +45,7 @@ from partition import __version__
 from partition.atomic import write_text
 from partition.errors import ParameterError
 from partition.plan import MODES, STEP_OPTIONS, UNIT_STEPS
+from partition.spark.refine import StepBlocks
 from partition.sizing import BYTES_PER_EDGE, fits_driver  # noqa: F401 - the --engine auto rule
 
 __all__ = ["run_spark", "partition_spark", "SparkBackend", "fits_driver", "MODES", "BYTES_PER_EDGE"]
@@ -74,30 +75,6 @@ def _fm_options(step_options):
     return fm
 
 
-class _Blocks:
-    """The refinement's cached edge blocks, built when first needed and shared by the steps.
-
-    ``cut`` and ``fm`` weights (:func:`partition.spark.refine.int_weights`) are
-    the same ones on unweighted graphs, so one set of blocks serves both.
-    """
-
-    def __init__(self, spark, sg):
-        self.spark, self.sg, self.made = spark, sg, {}
-
-    def __call__(self, kind):
-        from partition.spark.refine import edge_blocks
-
-        kind = kind if self.sg.weighted else "cut"
-        if kind not in self.made:
-            self.made[kind] = edge_blocks(self.spark, self.sg, kind)
-        return self.made[kind]
-
-    def release(self):
-        for b in self.made.values():
-            b.release()
-        self.made.clear()
-
-
 class SparkBackend:
     """The bulk operations of :func:`partition.pipeline.run_plan` over a graph held in Spark.
 
@@ -121,7 +98,7 @@ class SparkBackend:
                    "linkage": plan.linkage, "hub_cap": plan.hub_cap, "mode": plan.mode, "n": sg.n, "m": sg.m,
                    "source": sg.source}
         self.ck = Checkpoints(work_dir, options, resume)
-        self.blocks = _Blocks(spark, sg)
+        self.blocks = StepBlocks(spark, sg)
         self._graph = None
         self.total_weight = sg.m if not sg.weighted else self._total()
 

@@ -112,7 +112,7 @@ def recut_spark(spark, sg, order, k, eps=0.0, seed=0, refine=True, window=None, 
     from partition.placement.recut import band_floor
     from partition.spark.figures import result_figures
     from partition.spark.io import node_weight_array
-    from partition.spark.refine import spark_fm, spark_window
+    from partition.spark.refine import StepBlocks, spark_fm, spark_window
 
     order = check_order(order)
     if order.shape[0] != sg.n:
@@ -132,11 +132,16 @@ def recut_spark(spark, sg, order, k, eps=0.0, seed=0, refine=True, window=None, 
 
     parts = np.asarray(line_cut(order, nweights, k, eps), dtype=np.int64)
     stats = {"k": k, "imbalance_allowed": eps, "cut_line": cut(parts), "floor": int(rule.floor)}
-    if refine and k > 1:
-        parts = spark_window(spark, sg, order, parts, rule, nweights, w=window, progress=progress)
-    stats["cut_window"] = cut(parts)
-    if refine and k > 1:
-        parts = spark_fm(spark, sg, parts, rule, nw_ones, seed=seed, progress=progress)
+    blocks = StepBlocks(spark, sg)
+    try:
+        if refine and k > 1:
+            parts = spark_window(spark, sg, order, parts, rule, nweights, w=window, progress=progress,
+                                 blocks=blocks("cut"))
+        stats["cut_window"] = cut(parts)
+        if refine and k > 1:
+            parts = spark_fm(spark, sg, parts, rule, nw_ones, seed=seed, progress=progress, blocks=blocks("fm"))
+    finally:
+        blocks.release()
     parts = np.asarray(parts, dtype=np.int64)
     loads = np.bincount(parts, weights=nw_ones, minlength=k)
     stats["cut"] = cut(parts)

@@ -41,7 +41,7 @@ from partition.rules import AFFINITY_SCALE, weights_kept
 from partition.spark.blocks import group_chunks
 from partition.spark.session import describe
 
-__all__ = ["int_weights", "edge_blocks", "spark_window", "spark_fm", "spark_swaps"]
+__all__ = ["int_weights", "edge_blocks", "StepBlocks", "spark_window", "spark_fm", "spark_swaps"]
 
 _EMPTY = np.empty(0, dtype=np.int64)
 
@@ -196,6 +196,29 @@ def edge_blocks(spark, sg, kind):
 
     wedges, unit_w = int_weights(spark, sg, kind)
     return EdgeBlocks(spark, wedges, sg.n, unit_w)
+
+
+class StepBlocks:
+    """The refinement's cached edge blocks, built when a step first needs them and shared by the steps.
+
+    ``blocks(kind)`` gives the :func:`edge_blocks` of ``kind`` (``"cut"`` or
+    ``"fm"``); on unweighted graphs the two kinds are the same weights, so one
+    set of blocks serves both. :meth:`release` drops them all.
+    """
+
+    def __init__(self, spark, sg):
+        self.spark, self.sg, self.made = spark, sg, {}
+
+    def __call__(self, kind):
+        kind = kind if self.sg.weighted else "cut"
+        if kind not in self.made:
+            self.made[kind] = edge_blocks(self.spark, self.sg, kind)
+        return self.made[kind]
+
+    def release(self):
+        for b in self.made.values():
+            b.release()
+        self.made.clear()
 
 
 def spark_fm(spark, sg, parts, rule, nw, seed=0, max_passes=8, max_stall=256, stall_fraction=0.0, tol=0.0,
